@@ -1,0 +1,246 @@
+"""Results with their error budget: one row per mu, each value travelling with
+its quadrature, model, edge and statistical errors and a status, and the
+formatting that never prints a digit the errors do not support.
+
+All errors are absolute, on the scale of Z(mu)/Z(0) (so they can lie far
+below 1e-308; they are mpmath numbers). Status, in order of precedence:
+
+  unresolved     the wanted digits were not reached within the precision and
+                 node limits, or quad_err or model_err >= |value|
+  noise_limited  the statistical error >= |value|
+  edge_limited   edge_err >= 10% of |value|: the finite data range may hide
+                 a contribution as large as the value
+  ok             otherwise
+"""
+import math
+from dataclasses import dataclass, field
+from fractions import Fraction
+
+import mpmath
+
+STATUSES = ("ok", "edge_limited", "noise_limited", "unresolved")
+EDGE_FRACTION = mpmath.mpf("0.1")
+
+
+@dataclass(frozen=True)
+class Row:
+    """One mu: the value Z(mu)/Z(0) (an mpmath mpc) and its error budget."""
+
+    mu: Fraction
+    value: mpmath.mpc
+    quad_err: mpmath.mpf
+    edge_err: mpmath.mpf
+    model_err: mpmath.mpf = None
+    stat_err: mpmath.mpf = None
+    resolved: bool = True
+    degree: int = None
+    digits: int = 12
+
+    @property
+    def magnitude(self):
+        return abs(self.value)
+
+    @property
+    def total_err(self):
+        """Sum of every error that is known (a conservative combination)."""
+        return sum((e for e in (self.quad_err, self.model_err, self.edge_err, self.stat_err)
+                    if e is not None), mpmath.mpf(0))
+
+    @property
+    def status(self):
+        mag = self.magnitude
+        if (not self.resolved or self.quad_err >= mag
+                or (self.model_err is not None and self.model_err >= mag)):
+            return "unresolved"
+        if self.stat_err is not None and self.stat_err >= mag:
+            return "noise_limited"
+        if self.edge_err >= EDGE_FRACTION * mag:
+            return "edge_limited"
+        return "ok"
+
+    @property
+    def last_digit(self):
+        """Decimal exponent of the last digit the errors support (the
+        position of the total error's leading digit, and no finer than the
+        wanted number of significant digits); None when even the leading
+        digit of |value| is not supported."""
+        mag, err = self.magnitude, self.total_err
+        if mag == 0:
+            return None
+        top = int(mpmath.floor(mpmath.log10(mag)))
+        last = top - self.digits + 1
+        if err >= mag or self.status == "unresolved":
+            return None
+        if err > 0:
+            last = max(last, int(mpmath.floor(mpmath.log10(err))))
+        return last
+
+    def part(self, x):
+        """A real or imaginary part as a decimal string with only the
+        supported digits: '' when nothing is supported, '0' when the part
+        lies below the last supported digit."""
+        last = self.last_digit
+        if last is None:
+            return ""
+        if x == 0:
+            return "0"
+        nsig = int(mpmath.floor(mpmath.log10(abs(x)))) - last + 1
+        return "0" if nsig < 1 else _sci(x, nsig)
+
+    @property
+    def avg_phase(self):
+        return self.part(self.value.real)
+
+    @property
+    def avg_phase_imag(self):
+        return self.part(self.value.imag)
+
+    @property
+    def cancel_orders(self):
+        """-log10 |Z(mu)/Z(0)|; for an unresolved row the supported lower
+        bound -log10(|value| + total error)."""
+        mag = self.magnitude
+        if self.status == "unresolved":
+            return float(-mpmath.log10(mag + self.total_err))
+        return float(-mpmath.log10(mag))
+
+    def delta_f(self, volume):
+        """(Delta f, its error) = -ln|Z(mu)/Z(0)| / V, as strings with the
+        supported digits, or ('', '') without a volume or support."""
+        if volume is None or self.last_digit is None:
+            return "", ""
+        mag = self.magnitude
+        value = -mpmath.log(mag) / volume
+        err = self.total_err / mag / volume
+        return _round_to_error(value, err, self.digits), _sci(err, 2)
+
+
+def _sci(x, nsig):
+    s = mpmath.nstr(mpmath.mpf(x), max(1, nsig), min_fixed=-4, max_fixed=6,
+                    strip_zeros=False)
+    return s.replace(".e", "e").replace("e+", "e").rstrip(".")
+
+
+def _round_to_error(value, err, digits):
+    if value == 0:
+        return "0"
+    top = int(mpmath.floor(mpmath.log10(abs(value))))
+    last = top - digits + 1
+    if err > 0:
+        last = max(last, int(mpmath.floor(mpmath.log10(err))))
+    nsig = top - last + 1
+    return "0" if nsig < 1 else _sci(value, nsig)
+
+
+def error_string(e):
+    return "" if e is None else _sci(e, 2)
+
+
+def format_mu(mu):
+    """mu as a short decimal (at most 15 significant digits)."""
+    s = mpmath.nstr(mpmath.mpf(mu.numerator) / mu.denominator, 15)
+    return s[:-2] if s.endswith(".0") else s
+
+
+@dataclass
+class ResultTable:
+    """Rows over mu, plus what a reader needs to trust them."""
+
+    rows: list
+    model_label: str
+    volume: float = None
+    info: dict = field(default_factory=dict)
+
+    COLUMNS = ("mu", "avg_phase", "avg_phase_imag", "avg_phase_err", "delta_f",
+               "delta_f_err", "cancel_orders", "quad_err", "model_err", "edge_err",
+               "status", "degree")
+
+    def records(self):
+        """Rows as dicts of strings, in the column order of results.csv."""
+        out = []
+        for r in self.rows:
+            df, dferr = r.delta_f(self.volume)
+            out.append({
+                "mu": format_mu(r.mu),
+                "avg_phase": r.avg_phase,
+                "avg_phase_imag": r.avg_phase_imag,
+                "avg_phase_err": error_string(r.stat_err),
+                "delta_f": df,
+                "delta_f_err": dferr,
+                "cancel_orders": f"{r.cancel_orders:.2f}",
+                "quad_err": error_string(r.quad_err),
+                "model_err": error_string(r.model_err),
+                "edge_err": error_string(r.edge_err),
+                "status": r.status,
+                "degree": "" if r.degree is None else str(r.degree),
+            })
+        return out
+
+    def status_counts(self):
+        counts = {s: 0 for s in STATUSES}
+        for r in self.rows:
+            counts[r.status] += 1
+        return counts
+
+    def sign_changes(self):
+        """Brackets [mu_k, mu_k+1] where the real phase factor changes sign
+        between two neighbouring resolved rows whose imaginary parts are
+        negligible (real zeros of Z(mu))."""
+        out = []
+        for a, b in zip(self.rows, self.rows[1:]):
+            if a.status == "unresolved" or b.status == "unresolved":
+                continue
+            if any(abs(r.value.imag) > r.total_err + abs(r.value.real) * 1e-6 for r in (a, b)):
+                continue
+            if a.value.real * b.value.real < 0:
+                out.append([float(a.mu), float(b.mu)])
+        return out
+
+    def text(self, reference=None):
+        """A readable table; ``reference`` maps mu (Fraction) to an exact
+        value (mpf) to print beside the tool's answer."""
+        head = ["mu", "Z(mu)/Z(0)", "Im", "total err", "orders", "status"]
+        if reference is not None:
+            head.insert(3, "reference")
+        lines = []
+        for r, rec in zip(self.rows, self.records()):
+            value = rec["avg_phase"] or "(no digit)"
+            cols = [rec["mu"], value, rec["avg_phase_imag"] or "", _sci(r.total_err, 2),
+                    ("%s%s" % (">=" if r.status == "unresolved" else "", rec["cancel_orders"])),
+                    rec["status"]]
+            if reference is not None:
+                ref = reference.get(r.mu)
+                cols.insert(3, "" if ref is None else _sci(ref, max(3, min(12, _nsig(rec["avg_phase"])))))
+            lines.append(cols)
+        widths = [max(len(h), *(len(c[i]) for c in lines)) for i, h in enumerate(head)]
+        fmt = "  ".join("{:>%d}" % w for w in widths)
+        return "\n".join([fmt.format(*head)] + [fmt.format(*c) for c in lines])
+
+
+def _nsig(s):
+    mant = s.split("e")[0].replace("-", "").replace(".", "").lstrip("0")
+    return len(mant) if mant else 3
+
+
+def edge_error(model, log_z0, mu):
+    """What the finite data range can hide: the endpoint terms of the
+    integral, rho(b) / |p'(b) + i mu| at both ends, relative to Z(0) (the
+    leading term of integration by parts; a denominator is kept at least
+    1 / (q_max - q_min) so that a density that does not fall off still
+    counts as fully edge-limited)."""
+    a, b = model.domain
+    floor_ = 1.0 / (b - a)
+    total = mpmath.mpf(0)
+    for end in (a, b):
+        p = float(model.log_density(end))
+        dp = float(model.derivative(end))
+        denom = max(math.hypot(dp, float(mu)), floor_)
+        total += mpmath.exp(mpmath.mpf(p) - log_z0) / denom
+    return total
+
+
+def density_rises_at_edge(model):
+    """True when ln rho does not fall towards an end of the data range, so
+    that the range cuts off a part of the density that matters."""
+    a, b = model.domain
+    return float(model.derivative(a)) <= 0 or float(model.derivative(b)) >= 0
