@@ -80,13 +80,14 @@ def analyse(density, mus, model="chebyshev", degree=None, digits=12, certify=Fal
     batch = [central] + ([neighbour] if neighbour is not None else [])
     tr = type(central).transform_batch(batch, mus, digits=digits, certify=certify)
     rows = []
-    for k, mu in enumerate(tr.mus):
-        z = tr.values[0][k]
-        model_err = engine.upper(z - tr.values[1][k]) if len(batch) > 1 else None
-        rows.append(Row(mu=mu, value=mpmath.mpc(engine.to_mpf(z.real), engine.to_mpf(z.imag)),
-                        quad_err=tr.quad_err[0][k], model_err=model_err,
-                        edge_err=edge_error(central, tr.log_z0[0], mu), resolved=tr.resolved[k],
-                        degree=central.degree, digits=digits))
+    with mpmath.workdps(digits + 10):  # the values keep every digit asked for
+        for k, mu in enumerate(tr.mus):
+            z = tr.values[0][k]
+            model_err = engine.upper(z - tr.values[1][k]) if len(batch) > 1 else None
+            value = mpmath.mpc(engine.to_mpf(z.real), engine.to_mpf(z.imag))
+            rows.append(Row(mu=mu, value=value, quad_err=tr.quad_err[0][k], model_err=model_err,
+                            edge_err=edge_error(central, tr.log_z0[0], mu),
+                            resolved=tr.resolved[k], degree=central.degree, digits=digits))
     volume = volume if volume is not None else density.volume
     info = {
         "model": central.label,

@@ -105,19 +105,21 @@ class Row:
         return float(-mpmath.log10(mag))
 
     def delta_f(self, volume):
-        """(Delta f, its error) = -ln|Z(mu)/Z(0)| / V, as strings with the
-        supported digits, or ('', '') without a volume or support."""
+        """(Delta f, its statistical error) with Delta f = -ln|Z(mu)/Z(0)| / V,
+        as strings rounded where the total error puts the last supported
+        digit; ('', '') without a volume or without support."""
         if volume is None or self.last_digit is None:
             return "", ""
         mag = self.magnitude
         value = -mpmath.log(mag) / volume
         err = self.total_err / mag / volume
-        return _round_to_error(value, err, self.digits), _sci(err, 2)
+        stat = "" if self.stat_err is None else _sci(self.stat_err / mag / volume, 2)
+        return _round_to_error(value, err, self.digits), stat
 
 
 def _sci(x, nsig):
-    s = mpmath.nstr(mpmath.mpf(x), max(1, nsig), min_fixed=-4, max_fixed=6,
-                    strip_zeros=False)
+    with mpmath.workdps(max(15, nsig + 5)):
+        s = mpmath.nstr(x, max(1, nsig), min_fixed=-4, max_fixed=6, strip_zeros=False)
     return s.replace(".e", "e").replace("e+", "e").rstrip(".")
 
 
