@@ -149,7 +149,7 @@ class NestedFits:
     |b - Q Q^T b|^2 + |(Q^T b)[m:]|^2 (Golub & Van Loan, Matrix Computations,
     5.3)."""
 
-    def __init__(self, density, parity, sigma, max_degree):
+    def __init__(self, density, parity, sigma, max_degree, chi2_scale=1.0):
         self.density, self.parity = density, parity
         self.ks = _basis(density.kind, max_degree, parity)
         _, y, _ = _fit_data(density)
@@ -162,6 +162,7 @@ class NestedFits:
         self.qb = self.Q.T @ b
         perp = b - self.Q @ self.qb
         self.chi2_perp = float(perp @ perp)
+        self.chi2_scale = chi2_scale
         self.n = len(y)
         self.cache = {}
 
@@ -170,7 +171,7 @@ class NestedFits:
             m = len(_basis(self.density.kind, degree, self.parity))
             sol = np.linalg.solve(self.R[:m, :m], self.qb[:m]) / self.scale[:m]
             tail = self.qb[m:]
-            chi2 = self.chi2_perp + float(tail @ tail)
+            chi2 = (self.chi2_perp + float(tail @ tail)) * self.chi2_scale
             self.cache[degree] = _model_from(self.density, degree, self.parity, self.ks[:m],
                                              sol, self.design[:, :m], chi2, self.n - m)
         return self.cache[degree]
@@ -228,7 +229,7 @@ def _n_fit(density):
     return len(_fit_data(density)[1])
 
 
-def _select(density, parity, sigma, degree=None, max_degree=MAX_DEGREE):
+def _select(density, parity, sigma, degree=None, max_degree=MAX_DEGREE, chi2_scale=1.0):
     """Fit the candidate degrees; return (chosen, next, fits, consistent, criterion)."""
     n = _n_fit(density)
     degrees = candidate_degrees(density.kind, n, parity, max_degree)
@@ -243,7 +244,7 @@ def _select(density, parity, sigma, degree=None, max_degree=MAX_DEGREE):
         if degree not in degrees:
             raise InputError(density.source, f"{n} usable data points, but degree "
                              f"{degree} needs at least {len(_basis(density.kind, degree, parity)) + 1}")
-    nested = NestedFits(density, parity, sigma, degrees[-1])
+    nested = NestedFits(density, parity, sigma, degrees[-1], chi2_scale)
     if degree is not None:
         chosen = degree
         criterion = "degree given by the user"
@@ -285,6 +286,18 @@ def fit_chebyshev(density, degree=None, parity=None, max_degree=MAX_DEGREE):
         sigma = np.full_like(y, np.sqrt(var) if var > 0 else 1.0)
         notes.append("no errors given: noise estimated from the residuals of degree "
                      f"{dmax} (sigma = {np.sqrt(var):.3g})")
+    # Errors from the scatter of R replicas are themselves uncertain: the
+    # normalised residuals then follow Student's t with R - 1 degrees of
+    # freedom, whose mean square is (R - 1)/(R - 3), so chi^2 is rescaled by
+    # (R - 3)/(R - 1) before it is judged.
+    chi2_scale = 1.0
+    n_rep = len(density.replica_labels)
+    if density.error_source == "replicas" and density.kind != "histogram":
+        if n_rep >= 4:
+            chi2_scale = (n_rep - 3) / (n_rep - 1)
+        else:
+            notes.append(f"errors from the scatter of only {n_rep} replicas are rough; the "
+                         "degree choice and chi2 rest on them")
     parity = parity or density.symmetry
     parity_test = {}
     if parity in ("even", "odd") and not domain_is_symmetric(density.domain):
@@ -294,20 +307,21 @@ def fit_chebyshev(density, degree=None, parity=None, max_degree=MAX_DEGREE):
     if parity is None:
         parity = "none"
         if domain_is_symmetric(density.domain):
-            general, *_ = _select(density, "none", sigma, degree=None, max_degree=max_degree)
+            general, *_ = _select(density, "none", sigma, None, max_degree, chi2_scale)
             d = general.degree + (general.degree % 2)
             if d in candidate_degrees(density.kind, _n_fit(density), "even", max_degree):
                 even = fit_degree(density, d, "even", sigma=sigma)
                 full = fit_degree(density, d, "none", sigma=sigma)
                 dm = len(_basis(density.kind, d, "none")) - len(_basis(density.kind, d, "even"))
-                dchi2 = max(even.chi2 - full.chi2, 0.0)
+                dchi2 = max(even.chi2 - full.chi2, 0.0) * chi2_scale
                 p = chi2_sf(dchi2, dm)
                 parity_test = {"test": "chi2 difference, even vs unrestricted",
                                "degree": d, "delta_chi2": dchi2, "delta_m": dm, "p": p}
                 if p >= P_ACCEPT:
                     parity = "even"
                 parity_test["result"] = parity
-    model, nxt, fits, consistent, criterion = _select(density, parity, sigma, degree, max_degree)
+    model, nxt, fits, consistent, criterion = _select(density, parity, sigma, degree,
+                                                      max_degree, chi2_scale)
     if nxt is not None and nxt.degree < model.degree:
         notes.append(f"degree {model.degree} is the largest candidate: the truncation error "
                      f"is estimated against degree {nxt.degree}")
