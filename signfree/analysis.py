@@ -12,8 +12,9 @@ from dataclasses import dataclass
 from fractions import Fraction
 
 import mpmath
+import numpy as np
 
-from signfree import engine
+from signfree import engine, uncertainty
 from signfree.chebyshev import fit_chebyshev
 from signfree.piecewise import PiecewiseModel
 from signfree.results import ResultTable, Row, density_rises_at_edge, edge_error
@@ -61,33 +62,60 @@ class Analysis:
 
 
 def smoothing_models(density, model="chebyshev", degree=None, parity=None):
-    """(central model, neighbour model for the truncation error or None, fit)."""
+    """(central model, neighbour models for the truncation error, fit)."""
     if model == "chebyshev":
         fit = fit_chebyshev(density, degree=degree, parity=parity)
-        return fit.model, fit.next_model, fit
+        return fit.model, list(fit.next_models), fit
     if model == "piecewise":
         piecewise = PiecewiseModel.from_density(density)
-        return piecewise, piecewise.coarsened(), None
+        return piecewise, [piecewise.coarsened()], None
     raise ValueError(f"unknown model {model!r}; expected one of {', '.join(MODELS)}")
 
 
 def analyse(density, mus, model="chebyshev", degree=None, digits=12, certify=False,
-            volume=None, parity=None):
+            volume=None, parity=None, errors="auto", bootstrap_samples=200, seed=None):
     """Smooth the density, compute Z(mu)/Z(0) for every mu and return an
-    :class:`Analysis` whose table carries the error budget per mu."""
+    :class:`Analysis` whose table carries the error budget per mu.
+
+    ``degree`` None chooses it from the errors, an integer fixes it, and
+    'per-mu' picks for each mu the candidate minimising the combined
+    statistical and model error. ``errors`` is one of
+    :data:`signfree.uncertainty.METHODS`."""
+    if degree == "per-mu":
+        return _analyse_per_mu(density, mus, digits, certify, volume, parity, errors,
+                               bootstrap_samples, seed)
     start = time.perf_counter()
-    central, neighbour, fit = smoothing_models(density, model, degree, parity)
-    batch = [central] + ([neighbour] if neighbour is not None else [])
-    tr = type(central).transform_batch(batch, mus, digits=digits, certify=certify)
+    central, neighbours, fit = smoothing_models(density, model, degree, parity)
+    method = uncertainty.choose_method(density, errors, central.label)
+    batch = [central] + neighbours
+    resamples, gradient = [], ()
+    if method in ("jackknife", "bootstrap"):
+        if method == "bootstrap" and seed is None:
+            seed = int(np.random.SeedSequence().entropy % (1 << 32))
+        values = uncertainty.resampled_values(density, method, bootstrap_samples, seed)
+        resamples = uncertainty.resampled_models(density, central, values)
+    elif method == "covariance":
+        ks, cov = uncertainty.coefficient_covariance(density, central)
+        gradient = ks
+    tr = type(central).transform_batch(batch + resamples, mus, digits=digits, certify=certify,
+                                       check_rows=len(batch), gradient=gradient)
+    if resamples:
+        stat = uncertainty.spread_mp(method, [[_mpc(z) for z in row]
+                                              for row in tr.values[len(batch):]])
+    elif gradient:
+        stat = uncertainty.propagate_covariance(tr.values[0], tr.gradient, ks, cov)
+    else:
+        stat = [None] * len(tr.mus)
     rows = []
     with mpmath.workdps(digits + 10):  # the values keep every digit asked for
         for k, mu in enumerate(tr.mus):
             z = tr.values[0][k]
-            model_err = engine.upper(z - tr.values[1][k]) if len(batch) > 1 else None
-            value = mpmath.mpc(engine.to_mpf(z.real), engine.to_mpf(z.imag))
-            rows.append(Row(mu=mu, value=value, quad_err=tr.quad_err[0][k], model_err=model_err,
-                            edge_err=edge_error(central, tr.log_z0[0], mu),
-                            resolved=tr.resolved[k], degree=central.degree, digits=digits))
+            model_err = max((engine.upper(z - tr.values[r][k]) for r in range(1, len(batch))),
+                            default=None)
+            rows.append(Row(mu=mu, value=_mpc(z), quad_err=tr.quad_err[0][k],
+                            model_err=model_err, edge_err=edge_error(central, tr.log_z0[0], mu),
+                            stat_err=stat[k], resolved=tr.resolved[k], degree=central.degree,
+                            digits=digits))
     volume = volume if volume is not None else density.volume
     info = {
         "model": central.label,
@@ -98,24 +126,83 @@ def analyse(density, mus, model="chebyshev", degree=None, digits=12, certify=Fal
         "nodes": tr.nodes,
         "integration": tr.method,
         "domain": list(central.domain),
+        "statistical_errors": _describe_errors(method, density, bootstrap_samples),
         "notes": [],
     }
+    if method == "bootstrap":
+        info["bootstrap_seed"] = seed
     if fit is not None:
         info.update({
             "chi2": central.chi2, "dof": central.dof,
             "chi2_per_dof": central.chi2 / central.dof if central.dof else None,
             "degree_criterion": fit.criterion, "fit_consistent": fit.consistent,
-            "model_err_against": neighbour.label if neighbour is not None else None,
+            "model_err_against": [m.label for m in neighbours],
             "parity_test": fit.parity_test, "errors_estimated_from_residuals": fit.noise_estimated,
         })
         info["notes"].extend(fit.notes)
     else:
         info["model_err_against"] = "piecewise through every other knot"
+    if method == "none":
+        info["notes"].append("no replicas and no per-point errors: no statistical error "
+                             "(avg_phase_err is empty), so the horizon rests on the other errors")
     if density_rises_at_edge(central):
         info["notes"].append("ln rho does not fall towards an end of the data range: the range "
                              "cuts off part of the density and edge_err is large")
     if volume is None:
         info["notes"].append("no volume given: delta_f is left empty (use --volume)")
     table = ResultTable(rows=rows, model_label=central.label, volume=volume, info=info)
+    info["horizon"] = table.horizon()
     return Analysis(density=density, model=central, fit=fit, transform=tr, table=table,
                     seconds=time.perf_counter() - start)
+
+
+def _mpc(z):
+    return mpmath.mpc(engine.to_mpf(z.real), engine.to_mpf(z.imag))
+
+
+def _describe_errors(method, density, samples):
+    n_rep = max(1, len(density.replica_labels))
+    return {
+        "jackknife": f"delete-one jackknife over {n_rep} replicas, refit and integrated",
+        "bootstrap": f"bootstrap, {samples} resamples of {n_rep} replicas, refit and integrated",
+        "covariance": "linear propagation of the fit-coefficient covariance through the integral",
+        "none": "none",
+    }[method]
+
+
+def _analyse_per_mu(density, mus, digits, certify, volume, parity, errors, samples, seed):
+    """Per mu, the candidate degree with the smallest combined statistical
+    and model error (sqrt(stat^2 + model^2)), among the automatic choice,
+    two candidates below and four above it."""
+    from signfree.chebyshev import candidate_degrees
+    start = time.perf_counter()
+    fit = fit_chebyshev(density, parity=parity)
+    n_fit = len(density.log_density_points()[1]) if density.kind != "slopes" else density.n_points
+    degrees = candidate_degrees(density.kind, n_fit, fit.model.parity)
+    i = degrees.index(fit.model.degree)
+    window = degrees[max(0, i - 2): i + 5]
+    runs = {d: analyse(density, mus, "chebyshev", d, digits, certify, volume,
+                       fit.model.parity, errors, samples, seed) for d in window}
+    base = runs[fit.model.degree]
+    rows, used = [], []
+    for k in range(len(base.table.rows)):
+        def cost(d):
+            r = runs[d].table.rows[k]
+            if r.status == "unresolved":
+                return mpmath.inf
+            return mpmath.sqrt((r.stat_err or 0) ** 2 + (r.model_err or 0) ** 2)
+        best = min(window, key=lambda d: (cost(d), d))
+        if cost(best) == mpmath.inf:
+            best = fit.model.degree
+        rows.append(runs[best].table.rows[k])
+        used.append(best)
+    info = dict(base.table.info)
+    info.update({"degree": "per-mu", "degrees_tried": window,
+                 "degree_criterion": "per mu: smallest sqrt(stat_err^2 + model_err^2) among "
+                                     "the candidates tried"})
+    table = ResultTable(rows=rows, model_label="chebyshev:per-mu", volume=base.table.volume,
+                        info=info)
+    info["horizon"] = table.horizon()
+    info["model"] = "chebyshev:per-mu"
+    return Analysis(density=density, model=base.model, fit=fit, transform=base.transform,
+                    table=table, seconds=time.perf_counter() - start)

@@ -74,20 +74,22 @@ class ChebyshevModel:
         return self.transform_batch([self], mus, digits=digits, certify=certify)
 
     @staticmethod
-    def transform_batch(models, mus, digits=12, certify=False):
+    def transform_batch(models, mus, digits=12, certify=False, check_rows=None, gradient=()):
         """Z(mu)/Z(0) for every model (rows) and mu (columns); see
         :func:`signfree.engine.chebyshev_transform`."""
         from signfree import engine
-        return engine.chebyshev_transform(models, mus, digits=digits, certify=certify)
+        return engine.chebyshev_transform(models, mus, digits=digits, certify=certify,
+                                          check_rows=check_rows, gradient=gradient)
 
 
 @dataclass(frozen=True)
 class ChebyshevFit:
-    """The chosen model, its neighbour for the truncation error, every
-    candidate tried, and how the choice was made."""
+    """The chosen model, the next two candidate degrees (whose largest change
+    of the value is the truncation error), every candidate tried, and how the
+    choice was made."""
 
     model: ChebyshevModel
-    next_model: ChebyshevModel
+    next_models: tuple
     candidates: dict
     criterion: str
     consistent: bool
@@ -258,9 +260,10 @@ def _select(density, parity, sigma, degree=None, max_degree=MAX_DEGREE, chi2_sca
             chosen = min(degrees, key=lambda d: nested.model(d).chi2 + 2 * (n - nested.model(d).dof))
             criterion = "no degree consistent with the errors; minimum of AIC"
     i = degrees.index(chosen)
-    nxt = degrees[i + 1] if i + 1 < len(degrees) else (degrees[i - 1] if i > 0 else None)
-    return (nested.model(chosen), nested.model(nxt) if nxt is not None else None,
-            nested.cache, consistent, criterion)
+    above = degrees[i + 1: i + 3]
+    nxt = above or degrees[max(0, i - 2): i][::-1]
+    return (nested.model(chosen), [nested.model(d) for d in nxt], nested.cache, consistent,
+            criterion)
 
 
 def domain_is_symmetric(domain):
@@ -322,14 +325,14 @@ def fit_chebyshev(density, degree=None, parity=None, max_degree=MAX_DEGREE):
                 parity_test["result"] = parity
     model, nxt, fits, consistent, criterion = _select(density, parity, sigma, degree,
                                                       max_degree, chi2_scale)
-    if nxt is not None and nxt.degree < model.degree:
+    if nxt and nxt[0].degree < model.degree:
         notes.append(f"degree {model.degree} is the largest candidate: the truncation error "
-                     f"is estimated against degree {nxt.degree}")
+                     f"is estimated against lower degrees")
     if not consistent and degree is None:
         best = model.chi2 / max(model.dof, 1)
         notes.append(f"no degree fits the data within their errors (chi2/dof = {best:.3g} at "
                      f"degree {model.degree}): errors may be underestimated, or ln rho is not "
                      "smooth enough for a polynomial")
-    return ChebyshevFit(model=model, next_model=nxt, candidates=fits, criterion=criterion,
+    return ChebyshevFit(model=model, next_models=tuple(nxt), candidates=fits, criterion=criterion,
                         consistent=consistent, parity_test=parity_test,
                         noise_estimated=noise_estimated, notes=tuple(notes))

@@ -49,6 +49,8 @@ class Transform:
     prec       working precision in bits; nodes: Gauss-Legendre node count
     method     'gauss-legendre', 'acb.integral' or 'exact-segments'
     mus        the mu values used, as exact fractions
+    gradient   for chebyshev_transform(..., gradient=ks): (rows over k of
+               dZ_0(mu)/dc_k / Z_0(0), list over k of dZ_0(0)/dc_k / Z_0(0))
     """
 
     values: list
@@ -59,6 +61,7 @@ class Transform:
     nodes: int
     method: str
     mus: list
+    gradient: tuple = None
 
 
 def to_mpf(x):
@@ -105,12 +108,22 @@ def uniform_step(mus):
     return h
 
 
+def _on_ladder(n):
+    """The smallest node count >= n on the ladder 32 * 1.5^k, so that node
+    sets (and their cache) are shared between calls and each refinement step
+    is a factor of about 1.5."""
+    m = 32
+    while m < n:
+        m = (3 * m + 1) // 2
+    return m
+
+
 def precision_bits(depth, digits, magnitude=1.0, nodes=64):
     """Working precision for a cancellation depth (decimal orders), wanted
     digits, the size of the exponent p and the number of summed terms."""
     bits = (max(depth, 0.0) + digits + GUARD_DIGITS) * LOG2_10
     bits += math.log2(abs(magnitude) + 2.0) + math.log2(nodes + 1.0) + 16
-    return int(min(MAX_PREC, math.ceil(bits / 32.0) * 32))
+    return int(min(MAX_PREC, math.ceil(bits / 64.0) * 64))
 
 
 @lru_cache(maxsize=32)
@@ -161,10 +174,14 @@ def _exp_i(theta):
     return acb(0, theta).exp()
 
 
-def _gl_pass(coef_rows, domain, mus, prec, n):
+def _gl_pass(coef_rows, domain, mus, prec, n, grad_ks=()):
     """One Gauss-Legendre evaluation at n nodes and prec bits.
-    Returns (ratios rows x mu as acb, log Z0 per row)."""
-    degree = max(len(c) for c in coef_rows) - 1
+
+    Returns (ratios, log_z0, grad0): ratios[r][k] = Z_r(mu_k) / Z_r(0) as acb
+    for every coefficient row, followed by one row per k in ``grad_ks`` holding
+    Int T_k(x) exp(p_0 + i mu q) dq / Z_0(0) (the derivative of Z_0 with
+    respect to c_k); grad0[k] is the same at mu = 0."""
+    degree = max([len(c) for c in coef_rows] + [max(grad_ks, default=0) + 1]) - 1
     R, K = len(coef_rows), len(mus)
     with ctx.workprec(prec):
         xs, ws = gauss_legendre(n, prec)
@@ -184,37 +201,47 @@ def _gl_pass(coef_rows, domain, mus, prec, n):
             W.append(wr)
             z0.append(s)
             log_z0.append(float(shift.mid()) + float((s * half).log().mid()))
-        h = uniform_step(mus)
-        if h is not None and K >= 16:
-            B = math.isqrt(K - 1) + 1
-            A = -(-K // B)
-            step_g = [_exp_i(_arb(B * h) * q) for q in qs]
-            step_f = [_exp_i(_arb(h) * q) for q in qs]
-            G = []
-            for q, sg in zip(qs, step_g):
-                g = _exp_i(_arb(mus[0]) * q)
-                col = [g]
-                for _ in range(A - 1):
-                    g = g * sg
-                    col.append(g)
-                G.append(col)
-            F = []
-            for sf in step_f:
-                f, row = acb(1), [acb(1)]
-                for _ in range(B - 1):
-                    f = f * sf
-                    row.append(f)
-                F.append(row)
+        grad0 = []
+        for k in grad_ks:
+            W.append([w * T[k, j] for j, w in enumerate(W[0])])
+            z0.append(z0[0])
+            grad0.append(sum(W[-1], arb(0)) / z0[0])
+        Z = _fourier_rows(W, qs, mus)
+        ratios = [[Z[r][k] / z0[r] for k in range(K)] for r in range(len(W))]
+    return ratios, log_z0, grad0
+
+
+def _fourier_rows(W, qs, mus):
+    """sum_j W[r][j] exp(i mu_k q_j) for every row r and mu_k, as matrix
+    products. On an even mu grid with few rows, exp(i mu q) factorises
+    (G F, see the module docstring); otherwise E = exp(i mu q) is built
+    (by rotation on an even grid) and multiplied as two real matrices."""
+    R, K, n = len(W), len(mus), len(qs)
+    h = uniform_step(mus)
+    if h is not None and K >= 16:
+        B = math.isqrt(K - 1) + 1
+        A = -(-K // B)
+        G = [_powers(_exp_i(_arb(mus[0]) * q), _exp_i(_arb(B * h) * q), A) for q in qs]
+        F = [_powers(acb(1), _exp_i(_arb(h) * q), B) for q in qs]
+        if R * A < K:
             M = acb_mat([[W[r][j] * G[j][i] for j in range(n)] for r in range(R) for i in range(A)])
             Zm = M * acb_mat(F)
-            Z = [[Zm[r * A + k // B, k % B] for k in range(K)] for r in range(R)]
-        else:
-            mus_arb = [_arb(m) for m in mus]
-            E = acb_mat([[_exp_i(m * q) for m in mus_arb] for q in qs])
-            Zm = acb_mat(W) * E
-            Z = [[Zm[r, k] for k in range(K)] for r in range(R)]
-        ratios = [[Z[r][k] / z0[r] for k in range(K)] for r in range(R)]
-    return ratios, log_z0
+            return [[Zm[r * A + k // B, k % B] for k in range(K)] for r in range(R)]
+        E = [[g * f for g in G[j] for f in F[j]][:K] for j in range(n)]
+    else:
+        mus_arb = [_arb(m) for m in mus]
+        E = [[_exp_i(m * q) for m in mus_arb] for q in qs]
+    Wm = arb_mat(W)
+    re = Wm * arb_mat([[e.real for e in row] for row in E])
+    im = Wm * arb_mat([[e.imag for e in row] for row in E])
+    return [[acb(re[r, k], im[r, k]) for k in range(K)] for r in range(R)]
+
+
+def _powers(start, step, count):
+    out = [start]
+    for _ in range(count - 1):
+        out.append(out[-1] * step)
+    return out
 
 
 def _relative_radius(z):
@@ -223,47 +250,57 @@ def _relative_radius(z):
     return mpmath.inf if mag == 0 else rad / mag
 
 
-def chebyshev_transform(models, mus, digits=12, certify=False):
+def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
+                        gradient=()):
     """Z(mu)/Z(0) for Chebyshev models sharing one domain, with the working
     precision raised from the cancellation depth and the node count raised
     until an n- and a 1.5 n-point rule agree to ``digits``. A mu whose
     digits cannot be reached within MAX_PREC bits and MAX_NODES nodes is
-    marked unresolved (its value and quad_err still tell what was reached)."""
+    marked unresolved (its value and quad_err still tell what was reached).
+
+    Only the first ``check_rows`` models (default: all) steer the precision
+    and node count; the rest (replicas) are evaluated once with the rule so
+    found, and their quad_err is not estimated (None). ``gradient`` lists
+    coefficient indices k whose derivatives dZ_0/dc_k are wanted: they come
+    back in ``Transform.gradient`` as (rows over k of Int T_k exp(p_0 + i mu q)
+    / Z_0(0), the same at mu = 0)."""
     mus = as_fractions(mus)
     domain = models[0].domain
     if any(m.domain != domain for m in models):
         raise ValueError("models in one batch must share their domain")
-    coef_rows = [list(m.coef) for m in models]
+    all_rows = [list(m.coef) for m in models]
+    check_rows = len(models) if check_rows is None else check_rows
+    coef_rows = all_rows[:check_rows]
     var, pmax = _model_profile(models[0].coef, domain)
     half = 0.5 * (domain[1] - domain[0])
     mu_max = max(abs(float(m)) for m in mus)
     depth = max(float(m) ** 2 * var / (2 * math.log(10)) for m in mus)
-    degree = max(len(c) for c in coef_rows) - 1
+    degree = max(len(c) for c in all_rows) - 1
     # starting node count: the oscillation (mu half-range radians), the
     # degree, and the width of the peak of rho in window units; the
     # refinement loop below raises it where this is not enough
-    n = int(24 + 0.6 * degree + 0.7 * mu_max * half
-            + 0.5 * math.sqrt(2.3 * (depth + digits + 5) / max(var, 1e-300)) * half)
+    n = _on_ladder(24 + 0.6 * degree + 0.7 * mu_max * half
+                   + 0.5 * math.sqrt(2.3 * (depth + digits + 5) / max(var, 1e-300)) * half)
     prec = precision_bits(depth, digits, pmax, n)
     tol = mpmath.mpf(10) ** (-(digits + 1))
     done = {}
 
     def gl(nodes):
         if (nodes, prec) not in done:
-            done[nodes, prec] = _gl_pass(coef_rows, domain, mus, prec, nodes)
+            done[nodes, prec] = _gl_pass(coef_rows, domain, mus, prec, nodes)[:2]
         return done[nodes, prec]
 
     while True:
-        n1 = (3 * n + 1) // 2
+        n1 = _on_ladder(n + 1)
         z_n, _ = gl(n)
         z_n1, log_z0 = gl(n1)
         quad = [[upper(z_n[r][k] - z_n1[r][k]) for k in range(len(mus))]
-                for r in range(len(models))]
+                for r in range(check_rows)]
         need_prec, need_nodes = prec, False
         resolved = []
         for k in range(len(mus)):
             ok = True
-            for r in range(len(models)):
+            for r in range(check_rows):
                 z = z_n1[r][k]
                 rel_rad = _relative_radius(z)
                 if rel_rad > tol / 10:
@@ -272,7 +309,7 @@ def chebyshev_transform(models, mus, digits=12, certify=False):
                         need_prec = max(need_prec, 2 * prec)
                     else:
                         extra = float(mpmath.log(rel_rad * 10 / tol, 2))
-                        need_prec = max(need_prec, int(prec + extra + 32))
+                        need_prec = max(need_prec, int(math.ceil((prec + extra + 32) / 64) * 64))
                 elif quad[r][k] > tol * abs_mid(z):
                     ok, need_nodes = False, True
             resolved.append(ok)
@@ -284,17 +321,33 @@ def chebyshev_transform(models, mus, digits=12, certify=False):
             n = n1
         if prec > MAX_PREC or n > MAX_NODES:
             break
-    for r in range(len(models)):
+    for r in range(check_rows):
         for k in range(len(mus)):
             quad[r][k] += upper(acb(z_n1[r][k].real.rad(), z_n1[r][k].imag.rad()))
+    grad = None
+    if len(all_rows) > check_rows or gradient:
+        prec = min(prec, MAX_PREC)
+        rest, rest_log, grad0 = _gl_pass(all_rows[check_rows:] or all_rows[:1], domain, mus,
+                                         prec, n1, grad_ks=tuple(gradient))
+        extra = len(all_rows) - check_rows
+        z_n1 = z_n1 + rest[:extra]
+        log_z0 = log_z0 + rest_log[:extra]
+        quad = quad + [[None] * len(mus) for _ in range(extra)]
+        if gradient:
+            # gradient rows are relative to the first row of that pass
+            if extra:
+                raise ValueError("ask for gradients and replicas in separate calls")
+            grad = (rest[1:], grad0)
     if certify:
-        z_n1, quad, cert_ok = _certified(models, mus, digits, z_n1, prec)
+        cert, cert_quad, cert_ok = _certified(models[:check_rows], mus, digits, z_n1, prec)
+        z_n1 = cert + z_n1[check_rows:]
+        quad = cert_quad + quad[check_rows:]
         resolved = [a and b for a, b in zip(resolved, cert_ok)]
         method = "acb.integral"
     else:
         method = "gauss-legendre"
     return Transform(values=z_n1, quad_err=quad, log_z0=log_z0, resolved=resolved,
-                     prec=min(prec, MAX_PREC), nodes=n1, method=method, mus=mus)
+                     prec=min(prec, MAX_PREC), nodes=n1, method=method, mus=mus, gradient=grad)
 
 
 def _clenshaw(coef, x):

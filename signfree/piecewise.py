@@ -76,8 +76,12 @@ class PiecewiseModel:
         return self.transform_batch([self], mus, digits=digits, certify=certify)
 
     @staticmethod
-    def transform_batch(models, mus, digits=12, certify=False):
+    def transform_batch(models, mus, digits=12, certify=False, check_rows=None, gradient=()):
         """Exact segment sums; ``certify`` changes nothing, the result is
-        already an enclosure of the model's integral."""
+        already an enclosure of the model's integral; every row is computed
+        to the same precision (``check_rows`` is accepted for a uniform
+        interface); no gradient rows."""
+        if gradient:
+            raise ValueError("the piecewise model has no coefficients to differentiate")
         from signfree import engine
         return engine.segment_transform(models, mus, digits=digits)

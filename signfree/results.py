@@ -11,6 +11,9 @@ below 1e-308; they are mpmath numbers). Status, in order of precedence:
   edge_limited   edge_err >= 10% of |value|: the finite data range may hide
                  a contribution as large as the value
   ok             otherwise
+A row whose errors reach |value| only when added up takes the status of its
+largest error (noise -> noise_limited, edge -> edge_limited, model or
+quadrature -> unresolved).
 """
 import math
 from dataclasses import dataclass, field
@@ -56,6 +59,11 @@ class Row:
             return "noise_limited"
         if self.edge_err >= EDGE_FRACTION * mag:
             return "edge_limited"
+        if self.total_err >= mag:
+            # no single source reaches |value| but together they do: the row
+            # takes the status of its largest error
+            return {"noise": "noise_limited", "edge": "edge_limited"}.get(
+                self.dominant_error, "unresolved")
         return "ok"
 
     @property
@@ -104,6 +112,26 @@ class Row:
             return float(-mpmath.log10(mag + self.total_err))
         return float(-mpmath.log10(mag))
 
+    @property
+    def naive_log10_samples(self):
+        """log10 of the number of phase-quenched samples that direct
+        reweighting would need for the same relative error r: the phase
+        factor's sample mean has relative error about 1 / (sqrt(N) |Z/Z0|),
+        so N = 1 / (r^2 |Z/Z0|^2) (common practice). None without support."""
+        mag, err = self.magnitude, self.total_err
+        if self.last_digit is None or err == 0:
+            return None
+        return float(-2 * mpmath.log10(err / mag) - 2 * mpmath.log10(mag))
+
+    @property
+    def dominant_error(self):
+        """The largest error source: 'noise', 'model', 'edge' or 'precision'."""
+        parts = {"noise": self.stat_err, "model": self.model_err, "edge": self.edge_err,
+                 "precision": self.quad_err}
+        if not self.resolved:
+            return "precision"
+        return max((k for k in parts if parts[k] is not None), key=lambda k: parts[k])
+
     def delta_f(self, volume):
         """(Delta f, its statistical error) with Delta f = -ln|Z(mu)/Z(0)| / V,
         as strings rounded where the total error puts the last supported
@@ -134,8 +162,16 @@ def _round_to_error(value, err, digits):
     return "0" if nsig < 1 else _sci(value, nsig)
 
 
+def _power_of_ten(log10n):
+    if log10n is None:
+        return ""
+    return "1" if log10n < 0.5 else f"1e{int(round(log10n))}"
+
+
 def error_string(e):
-    return "" if e is None else _sci(e, 2)
+    if e is None:
+        return ""
+    return "0" if e == 0 else _sci(e, 2)
 
 
 def format_mu(mu):
@@ -155,7 +191,7 @@ class ResultTable:
 
     COLUMNS = ("mu", "avg_phase", "avg_phase_imag", "avg_phase_err", "delta_f",
                "delta_f_err", "cancel_orders", "quad_err", "model_err", "edge_err",
-               "status", "degree")
+               "status", "degree", "naive_samples")
 
     def records(self):
         """Rows as dicts of strings, in the column order of results.csv."""
@@ -175,6 +211,7 @@ class ResultTable:
                 "edge_err": error_string(r.edge_err),
                 "status": r.status,
                 "degree": "" if r.degree is None else str(r.degree),
+                "naive_samples": _power_of_ten(r.naive_log10_samples),
             })
         return out
 
@@ -183,6 +220,28 @@ class ResultTable:
         for r in self.rows:
             counts[r.status] += 1
         return counts
+
+    def horizon(self):
+        """The largest |mu| of the scan up to which every value stays at least
+        two standard errors (all error sources added) away from zero and is
+        resolved, with the reason it stops: the largest error source at the
+        first row that fails ('noise', 'model', 'edge', 'precision'), or
+        'end of scan'."""
+        rows = sorted(self.rows, key=lambda r: abs(r.mu))
+        last = None
+        for r in rows:
+            if r.status == "unresolved" or r.magnitude < 2 * r.total_err:
+                reason, stop = r.dominant_error, float(r.mu)
+                break
+            last = r
+        else:
+            reason, stop = "end of scan", None
+        out = {"mu": None if last is None else float(last.mu),
+               "cancel_orders": None if last is None else round(last.cancel_orders, 2),
+               "reason": reason, "first_lost_mu": stop}
+        if last is not None and last.naive_log10_samples is not None:
+            out["naive_samples_log10"] = round(last.naive_log10_samples, 1)
+        return out
 
     def sign_changes(self):
         """Brackets [mu_k, mu_k+1] where the real phase factor changes sign
@@ -201,18 +260,20 @@ class ResultTable:
     def text(self, reference=None):
         """A readable table; ``reference`` maps mu (Fraction) to an exact
         value (mpf) to print beside the tool's answer."""
-        head = ["mu", "Z(mu)/Z(0)", "Im", "total err", "orders", "status"]
+        head = ["mu", "Z(mu)/Z(0)", "Im", "stat err", "total err", "orders", "status"]
         if reference is not None:
             head.insert(3, "reference")
         lines = []
         for r, rec in zip(self.rows, self.records()):
             value = rec["avg_phase"] or "(no digit)"
-            cols = [rec["mu"], value, rec["avg_phase_imag"] or "", _sci(r.total_err, 2),
+            cols = [rec["mu"], value, rec["avg_phase_imag"] or "", rec["avg_phase_err"] or "-",
+                    _sci(r.total_err, 2),
                     ("%s%s" % (">=" if r.status == "unresolved" else "", rec["cancel_orders"])),
                     rec["status"]]
             if reference is not None:
                 ref = reference.get(r.mu)
-                cols.insert(3, "" if ref is None else _sci(ref, max(3, min(12, _nsig(rec["avg_phase"])))))
+                nsig = max(3, min(12, _nsig(rec["avg_phase"])))
+                cols.insert(3, "" if ref is None else _sci(ref, nsig))
             lines.append(cols)
         widths = [max(len(h), *(len(c[i]) for c in lines)) for i, h in enumerate(head)]
         fmt = "  ".join("{:>%d}" % w for w in widths)

@@ -1,0 +1,136 @@
+"""Statistical errors carried through the whole chain (fit, then Fourier
+integral).
+
+With replicas (independent repetitions of the whole measurement) every
+resample of the replicas is refitted with the same degree and parity and
+integrated in the same batch as the central model:
+  jackknife  delete-one over replicas, sigma^2 = (R-1)/R sum |z_i - zbar|^2
+             (Efron & Stein 1981; Efron, The Jackknife, the Bootstrap and
+             Other Resampling Plans, 1982)
+  bootstrap  B resamples of the R replicas with replacement,
+             sigma^2 = sum |z_b - zbar|^2 / (B - 1) (Efron 1979); the seed is
+             recorded.
+Without replicas but with per-point errors, the fit-coefficient covariance
+C = (A^T S^-2 A)^-1 of the weighted least-squares fit is propagated linearly:
+dZ/dc_k = Int T_k(x) exp(p(q) + i mu q) dq, one more Fourier integral of the
+same kind, so that for R = Z(mu)/Z(0) and v_k = (dR/dc_k)/R,
+  E|dR|^2 = |R|^2 (Re v^T C Re v + Im v^T C Im v).
+The covariance route is linear: where the analytic continuation amplifies
+noise strongly (large mu, high degree) the replica routes are the safer
+reference, and they agree with it where both apply (tests/test_uncertainty.py).
+"""
+import dataclasses
+
+import mpmath
+import numpy as np
+
+from signfree import engine
+from signfree.chebyshev import _basis, _design, _fit_data, fit_degree
+from signfree.piecewise import PiecewiseModel
+
+METHODS = ("auto", "jackknife", "bootstrap", "covariance", "none")
+
+
+def choose_method(density, method="auto", model_label="chebyshev"):
+    """The error route for a density: 'auto' takes the jackknife when there
+    are at least two replicas, the covariance route when there are per-point
+    errors (Chebyshev models only), and none otherwise."""
+    n_rep = len(density.replica_labels)
+    if method != "auto":
+        if method in ("jackknife", "bootstrap") and n_rep < 2:
+            raise ValueError(f"--errors {method} needs at least 2 replicas; "
+                             f"{density.source} has {max(n_rep, 1)}")
+        if method == "covariance" and not model_label.startswith("chebyshev"):
+            raise ValueError("--errors covariance applies to the Chebyshev model only")
+        return method
+    if n_rep >= 2:
+        return "jackknife"
+    if model_label.startswith("chebyshev") and (density.error is not None
+                                                 or density.kind == "histogram"):
+        return "covariance"
+    return "none"
+
+
+def resampled_values(density, method, samples=200, seed=None):
+    """Central values of every resample of the replicas (replica mean, or
+    pooled counts for a histogram)."""
+    reps = density.replicas
+    R = reps.shape[0]
+    pool = np.sum if density.kind == "histogram" else np.mean
+    if method == "jackknife":
+        return [pool(np.delete(reps, i, axis=0), axis=0) for i in range(R)]
+    rng = np.random.default_rng(seed)
+    return [pool(reps[rng.integers(0, R, R)], axis=0) for _ in range(samples)]
+
+
+def resampled_models(density, model, values):
+    """The central model's recipe applied to every resample."""
+    out = []
+    for v in values:
+        d = dataclasses.replace(density, value=v, replicas=None)
+        if isinstance(model, PiecewiseModel):
+            out.append(PiecewiseModel.from_density(d))
+        else:
+            _, _, sigma = _fit_data(density)
+            if density.kind == "histogram":
+                sigma = None  # Poisson errors of the resampled counts
+            out.append(fit_degree(d, model.degree, model.parity, sigma=sigma))
+    return out
+
+
+def spread(method, values):
+    """Statistical error of each column (mu) of resampled complex values."""
+    z = np.array([[complex(v) for v in row] for row in values])
+    n = z.shape[0]
+    dev = np.abs(z - z.mean(axis=0)) ** 2
+    if method == "jackknife":
+        return np.sqrt((n - 1) / n * dev.sum(axis=0))
+    return np.sqrt(dev.sum(axis=0) / (n - 1))
+
+
+def spread_mp(method, rows):
+    """As :func:`spread` but for values that may lie below 1e-308: each
+    column is scaled by its largest magnitude first."""
+    out = []
+    for col in zip(*rows):
+        scale = max(abs(c) for c in col)
+        if scale == 0:
+            out.append(mpmath.mpf(0))
+            continue
+        s = spread(method, [[c / scale] for c in col])[0]
+        out.append(mpmath.mpf(float(s)) * scale)
+    return out
+
+
+def coefficient_covariance(density, model, sigma=None):
+    """(ks, C): the fitted coefficient indices and their covariance
+    (A^T S^-2 A)^-1 for the weighted least-squares fit (Golub & Van Loan,
+    Matrix Computations, 5.3)."""
+    ks = _basis(density.kind, model.degree, model.parity)
+    _, y, s = _fit_data(density)
+    sigma = s if sigma is None else sigma
+    A = _design(density, model.domain, ks) / sigma[:, None]
+    scale = np.sqrt((A * A).sum(axis=0))
+    scale[scale == 0] = 1.0
+    cov = np.linalg.inv((A / scale).T @ (A / scale)) / np.outer(scale, scale)
+    return ks, cov
+
+
+def propagate_covariance(values, gradient, ks, cov):
+    """Linear propagation through the integral (module docstring). values:
+    acb per mu; gradient: engine.Transform.gradient for the same ks."""
+    rows, grad0 = gradient
+    errs = []
+    for k, z in enumerate(values):
+        R = mpmath.mpc(engine.to_mpf(z.real), engine.to_mpf(z.imag))
+        if R == 0:
+            errs.append(mpmath.mpf(0))
+            continue
+        v = []
+        for i in range(len(ks)):
+            g = rows[i][k] - z * grad0[i]
+            v.append(complex(mpmath.mpc(engine.to_mpf(g.real), engine.to_mpf(g.imag)) / R))
+        v = np.array(v)
+        var = v.real @ cov @ v.real + v.imag @ cov @ v.imag
+        errs.append(abs(R) * mpmath.sqrt(max(float(var), 0.0)))
+    return errs
