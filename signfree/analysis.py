@@ -17,7 +17,7 @@ import numpy as np
 from signfree import engine, uncertainty
 from signfree.chebyshev import fit_chebyshev
 from signfree.piecewise import PiecewiseModel
-from signfree.results import ResultTable, Row, density_rises_at_edge, edge_error
+from signfree.results import ResultTable, Row, density_rises_at_edge, edge_errors
 
 MODELS = ("chebyshev", "piecewise")
 
@@ -100,20 +100,21 @@ def analyse(density, mus, model="chebyshev", degree=None, digits=12, certify=Fal
     tr = type(central).transform_batch(batch + resamples, mus, digits=digits, certify=certify,
                                        check_rows=len(batch), gradient=gradient)
     if resamples:
-        stat = uncertainty.spread_mp(method, [[_mpc(z) for z in row]
-                                              for row in tr.values[len(batch):]])
+        stat = uncertainty.spread_relative(method, tr.values[0], tr.values[len(batch):])
     elif gradient:
         stat = uncertainty.propagate_covariance(tr.values[0], tr.gradient, ks, cov)
     else:
         stat = [None] * len(tr.mus)
     rows = []
+    edges = edge_errors(central, tr.log_z0[0], tr.mus)
     with mpmath.workdps(digits + 10):  # the values keep every digit asked for
         for k, mu in enumerate(tr.mus):
             z = tr.values[0][k]
-            model_err = max((engine.upper(z - tr.values[r][k]) for r in range(1, len(batch))),
+            model_err = max((engine.upper(engine.difference(z, tr.values[r][k]))
+                              for r in range(1, len(batch))),
                             default=None)
             rows.append(Row(mu=mu, value=_mpc(z), quad_err=tr.quad_err[0][k],
-                            model_err=model_err, edge_err=edge_error(central, tr.log_z0[0], mu),
+                            model_err=model_err, edge_err=edges[k],
                             stat_err=stat[k], resolved=tr.resolved[k], degree=central.degree,
                             digits=digits))
     volume = volume if volume is not None else density.volume

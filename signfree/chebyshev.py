@@ -246,7 +246,9 @@ def _select(density, parity, sigma, degree=None, max_degree=MAX_DEGREE, chi2_sca
         if degree not in degrees:
             raise InputError(density.source, f"{n} usable data points, but degree "
                              f"{degree} needs at least {len(_basis(density.kind, degree, parity)) + 1}")
-    nested = NestedFits(density, parity, sigma, degrees[-1], chi2_scale)
+    top = degrees[-1] if degree is None else degrees[min(len(degrees) - 1,
+                                                         degrees.index(degree) + 2)]
+    nested = NestedFits(density, parity, sigma, top, chi2_scale)
     if degree is not None:
         chosen = degree
         criterion = "degree given by the user"

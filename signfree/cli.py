@@ -1,14 +1,19 @@
 """The ``signfree`` command: a thin layer over :mod:`signfree.analysis`.
 
-    signfree run INPUT --mu SPEC [--volume V] [--model chebyshev|piecewise]
-                 [--degree N] [--digits D] [--certify] [--out DIR]
+    signfree run INPUT [INPUT ...] --mu SPEC [--volume V]
+                 [--model chebyshev|piecewise] [--degree N|per-mu] [--digits D]
+                 [--errors auto|jackknife|bootstrap|covariance|none]
+                 [--bootstrap B] [--seed S] [--certify] [--out DIR]
+                 [--jobs N] [--quiet]
     signfree demo [--out DIR]
 
 Bad input gives one line on stderr and exit status 2, and nothing is
 written.
 """
 import argparse
+import os
 import sys
+import threading
 import time
 from datetime import datetime, timezone
 from pathlib import Path
@@ -31,21 +36,44 @@ def _add_analysis_options(p):
     p.add_argument("--symmetry", choices=("even", "odd", "none"),
                    help="parity of ln rho (overrides metadata; default: detect)")
     p.add_argument("--model", choices=("chebyshev", "piecewise"), default="chebyshev")
-    p.add_argument("--degree", type=int, help="Chebyshev degree (default: chosen from the errors)")
+    p.add_argument("--degree", type=_degree, metavar="N|per-mu",
+                   help="Chebyshev degree (default: chosen from the errors); 'per-mu' picks "
+                        "per mu the candidate with the smallest statistical plus model error")
     p.add_argument("--digits", type=int, default=12,
                    help="significant digits wanted (default 12)")
+    p.add_argument("--errors", default="auto",
+                   choices=("auto", "jackknife", "bootstrap", "covariance", "none"),
+                   help="statistical errors (default: jackknife over replicas, else "
+                        "covariance propagation of per-point errors)")
+    p.add_argument("--bootstrap", type=int, default=200, metavar="B",
+                   help="bootstrap resamples (default 200)")
+    p.add_argument("--seed", type=int, help="bootstrap seed (default: random, recorded)")
     p.add_argument("--certify", action="store_true",
                    help="rigorous enclosures by acb.integral per point (slower)")
+
+
+def _degree(text):
+    if text == "per-mu":
+        return text
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected an integer or 'per-mu', got {text!r}")
 
 
 def build_parser():
     parser = _Parser(prog="signfree", description="Phase factors and free-energy "
                      "differences from a measured density of states.")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
-    run = sub.add_parser("run", help="analyse one density file")
-    run.add_argument("input", help="CSV file (kind slopes, log_density or histogram)")
+    run = sub.add_parser("run", help="analyse density files")
+    run.add_argument("input", nargs="+",
+                     help="CSV file(s) (kind slopes, log_density or histogram)")
     _add_analysis_options(run)
-    run.add_argument("--out", metavar="DIR", help="output folder (default: a new folder)")
+    run.add_argument("--out", metavar="DIR", help="output folder (default: a new folder); "
+                     "with several inputs one subfolder per input")
+    run.add_argument("--jobs", type=int, default=1, metavar="N",
+                     help="analyse several inputs in N parallel processes")
+    run.add_argument("--quiet", action="store_true", help="no progress display")
     demo = sub.add_parser("demo", help="run the pipeline on the shipped demo data")
     demo.add_argument("--out", metavar="DIR", help="output folder (default: a new folder)")
     return parser
@@ -64,6 +92,7 @@ def run_files(input_path, args, reference=None):
     from signfree.reading import read_density
     from signfree.results import ResultTable
 
+    opt = lambda name, default=None: getattr(args, name, default)
     if args.digits < 1 or args.digits > 1000:
         raise ValueError(f"--digits {args.digits}: expected 1 to 1000")
     if args.volume is not None and not args.volume > 0:
@@ -72,8 +101,11 @@ def run_files(input_path, args, reference=None):
     start = time.perf_counter()
     density = read_density(input_path, kind=args.kind, volume=args.volume,
                            symmetry=args.symmetry)
+    if opt("bootstrap", 200) < 2:
+        raise ValueError(f"--bootstrap {opt('bootstrap')}: expected at least 2 resamples")
     result = analyse(density, mus, model=args.model, degree=args.degree, digits=args.digits,
-                     certify=args.certify, volume=args.volume)
+                     certify=args.certify, volume=args.volume, errors=opt("errors", "auto"),
+                     bootstrap_samples=opt("bootstrap", 200), seed=opt("seed"))
     table = result.table
     summary = {
         "input": {
@@ -110,20 +142,115 @@ def _report(result, folder, reference=None, out=sys.stdout):
         print(f"note: {note}", file=out)
     print(table.text(reference), file=out)
     counts = ", ".join(f"{v} {k}" for k, v in table.status_counts().items() if v)
-    print(f"statuses: {counts}", file=out)
+    print(f"statuses: {counts}; statistical errors: {info['statistical_errors']}", file=out)
+    print(horizon_line(info["horizon"]), file=out)
     if folder is not None:
         print(f"wrote {folder / 'results.csv'} and {folder / 'summary.json'}", file=out)
 
 
-def cmd_run(args):
+def horizon_line(h):
+    """The headline practitioners quote: where the signal is lost, and what
+    direct reweighting would cost there."""
+    if h["mu"] is None:
+        return (f"horizon: no mu of the scan is resolved two standard errors away from zero "
+                f"(limited by {h['reason']} at mu = {h['first_lost_mu']:g})")
+    text = (f"horizon: signal to mu = {h['mu']:g} ({h['cancel_orders']:.1f} orders cancelled)")
+    text += (", end of scan" if h["first_lost_mu"] is None else
+             f"; lost at mu = {h['first_lost_mu']:g} ({h['reason']})")
+    if h.get("naive_samples_log10") is not None:
+        text += (f"; direct reweighting would need ~1e{h['naive_samples_log10']:.0f} "
+                 "phase-quenched samples for the same accuracy there")
+    return text
+
+
+def _analyse_one(job):
+    """Worker for one input (also in a child process): (path, report text,
+    files) or (path, None, error message); only plain text crosses the
+    process boundary."""
+    import io
     from signfree.errors import InputError
-    from signfree.output import new_folder_name, write_files
+    path, args = job
     try:
-        result, files = run_files(args.input, args)
+        result, files = run_files(path, args)
     except (InputError, ValueError) as exc:
-        return _fail(str(exc))
-    folder = write_files(Path(args.out) if args.out else new_folder_name(), files)
-    _report(result, folder)
+        return path, None, str(exc)
+    text = io.StringIO()
+    _report(result, None, out=text)
+    return path, text.getvalue(), files
+
+
+class Progress:
+    """Elapsed time and files done on stderr, shown only on a terminal and
+    only once a run has taken more than two seconds."""
+
+    def __init__(self, total, quiet=False):
+        self.total, self.done, self.start = total, 0, time.time()
+        self.active = not quiet and sys.stderr.isatty()
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._loop, daemon=True)
+        if self.active:
+            self._thread.start()
+
+    def _loop(self):
+        while not self._stop.wait(0.5):
+            elapsed = time.time() - self.start
+            if elapsed > 2:
+                width = 24
+                fill = int(width * self.done / self.total)
+                sys.stderr.write(f"\rsignfree [{'#' * fill}{'.' * (width - fill)}] "
+                                 f"{self.done}/{self.total} files, {elapsed:.0f} s")
+                sys.stderr.flush()
+
+    def step(self):
+        self.done += 1
+
+    def close(self):
+        if self.active:
+            self._stop.set()
+            self._thread.join()
+            if time.time() - self.start > 2:
+                sys.stderr.write("\r" + " " * 60 + "\r")
+
+
+def cmd_run(args):
+    from signfree.output import new_folder_name, write_files
+    if args.jobs < 1:
+        return _fail(f"--jobs {args.jobs}: expected at least 1")
+    jobs = [(path, args) for path in args.input]
+    progress = Progress(len(jobs), args.quiet)
+    outcomes = []
+    try:
+        if args.jobs > 1 and len(jobs) > 1:
+            import multiprocessing
+            with multiprocessing.get_context("spawn").Pool(min(args.jobs, len(jobs))) as pool:
+                for outcome in pool.imap(_analyse_one, jobs):
+                    outcomes.append(outcome)
+                    progress.step()
+        else:
+            for job in jobs:
+                outcomes.append(_analyse_one(job))
+                progress.step()
+    finally:
+        progress.close()
+    failed = [message for _, result, message in outcomes if result is None]
+    if failed:
+        for message in failed:
+            _fail(message)
+        return 2
+    if len(outcomes) == 1:
+        targets = [Path(args.out) if args.out else new_folder_name()]
+    else:
+        base = Path(args.out) if args.out else new_folder_name()
+        base.mkdir(parents=True, exist_ok=True)
+        stems = [Path(p).stem for p in args.input]
+        names = [s if stems.count(s) == 1 else f"{s}-{i + 1}" for i, s in enumerate(stems)]
+        targets = [base / name for name in names]
+    for (path, text, files), target in zip(outcomes, targets):
+        folder = write_files(target, files)
+        sys.stdout.write(text)
+        print(f"wrote {folder / 'results.csv'} and {folder / 'summary.json'}")
+        if len(outcomes) > 1:
+            print()
     return 0
 
 
@@ -151,7 +278,8 @@ def cmd_demo(args):
     outputs = {}
     for name, spec in runs:
         ns = argparse.Namespace(mu=spec, volume=None, kind=None, symmetry=None,
-                                model="chebyshev", degree=None, digits=12, certify=False)
+                                model="chebyshev", degree=None, digits=12, certify=False,
+                                errors="auto", bootstrap=200, seed=None)
         result, files = run_files(DEMO_DIR / name, ns)
         outputs[Path(name).stem] = (result, files)
     base.mkdir(parents=True, exist_ok=True)

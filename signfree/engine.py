@@ -22,10 +22,13 @@ Theory and Approximation Practice, ch. 19.
 
 Piecewise-linear models are integrated exactly, segment by segment.
 """
+import bisect
 import math
+import os
+import tempfile
 from dataclasses import dataclass
 from fractions import Fraction
-from functools import lru_cache
+from pathlib import Path
 
 import mpmath
 import numpy as np
@@ -78,6 +81,13 @@ def upper(x):
     return mpmath.mpf((int(man), int(exp)))
 
 
+def difference(a, b):
+    """a - b for arb or acb balls, exactly (Arb rounds every operation to the
+    context precision, 53 bits outside a ``workprec`` block)."""
+    with ctx.workprec(MAX_PREC):
+        return a - b
+
+
 def abs_mid(z):
     """|mid z| of an acb ball as an mpf."""
     return mpmath.hypot(to_mpf(z.real), to_mpf(z.imag))
@@ -109,12 +119,11 @@ def uniform_step(mus):
 
 
 def _on_ladder(n):
-    """The smallest node count >= n on the ladder 32 * 1.5^k, so that node
-    sets (and their cache) are shared between calls and each refinement step
-    is a factor of about 1.5."""
+    """The smallest node count >= n on the ladder 32 * 1.1^k (rounded up),
+    so that node sets (and their cache) are shared between calls."""
     m = 32
     while m < n:
-        m = (3 * m + 1) // 2
+        m = -(-11 * m // 10)
     return m
 
 
@@ -126,26 +135,116 @@ def precision_bits(depth, digits, magnitude=1.0, nodes=64):
     return int(min(MAX_PREC, math.ceil(bits / 64.0) * 64))
 
 
-@lru_cache(maxsize=32)
+_NODES = {}
+
+
+def _cache_dir():
+    """Where computed Gauss-Legendre rules are kept between runs:
+    $SIGNFREE_CACHE, else ~/.cache/signfree; SIGNFREE_CACHE=off keeps none.
+    The files hold exact balls (integer mantissas and exponents), so a rule
+    read back is the rule computed."""
+    where = os.environ.get("SIGNFREE_CACHE")
+    if where == "off":
+        return None
+    return Path(where) if where else Path.home() / ".cache" / "signfree"
+
+
+def _ball_ints(x):
+    m, e = x.mid().man_exp()
+    rm, re = x.rad().man_exp()
+    return f"{int(m):x} {int(e)} {int(rm):x} {int(re)}"
+
+
+def _ball(fields):
+    m, e, rm, re = int(fields[0], 16), int(fields[1]), int(fields[2], 16), int(fields[3])
+    return arb(arb(m) * arb(2) ** e, arb(rm) * arb(2) ** re)
+
+
+def _read_rule(n, prec):
+    folder = _cache_dir()
+    if folder is None:
+        return None
+    best = None
+    for path in folder.glob(f"gauss-legendre-{n}-*.txt"):
+        try:
+            p = int(path.stem.rsplit("-", 1)[1])
+        except ValueError:
+            continue
+        if p >= prec and (best is None or p < best[0]):
+            best = (p, path)
+    if best is None:
+        return None
+    try:
+        lines = best[1].read_text().split("\n")
+        with ctx.workprec(best[0] + 16):
+            half = [(_ball(f[:4]), _ball(f[4:])) for f in (ln.split() for ln in lines if ln)]
+    except (OSError, ValueError, IndexError):
+        return None
+    return half if len(half) == (n + 1) // 2 else None
+
+
+def _write_rule(n, prec, half):
+    folder = _cache_dir()
+    if folder is None:
+        return
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        text = "".join(f"{_ball_ints(x)} {_ball_ints(w)}\n" for x, w in half)
+        fd, tmp = tempfile.mkstemp(dir=folder, prefix=".gl-")
+        with os.fdopen(fd, "w") as f:
+            f.write(text)
+        os.replace(tmp, folder / f"gauss-legendre-{n}-{prec}.txt")
+    except OSError:
+        pass  # a cache that cannot be written only costs time
+
+
 def gauss_legendre(n, prec):
-    """Nodes and weights of the n-point Gauss-Legendre rule on [-1, 1] at
-    ``prec`` bits (Arb's arb_hypgeom_legendre_p_ui_root)."""
-    with ctx.workprec(prec + 16):
-        half = [arb.legendre_p_root(n, k, weight=True) for k in range((n + 1) // 2)]
-    xs = [x for x, _ in half] + [-x for x, _ in reversed(half[: n // 2])]
-    ws = [w for _, w in half] + [w for _, w in reversed(half[: n // 2])]
-    return tuple(xs), tuple(ws)
+    """Nodes and weights of the n-point Gauss-Legendre rule on [-1, 1] to at
+    least ``prec`` bits (Arb's arb_hypgeom_legendre_p_ui_root). A rule once
+    computed at some precision serves every lower one, in this process and,
+    through :func:`_cache_dir`, in later runs."""
+    if (n, prec) in _NODES:
+        return _NODES[n, prec]
+    for (m, p), (xs, ws) in list(_NODES.items()):
+        if m == n and p > prec:
+            # rounded to the working precision: Arb's matrix products lose
+            # accuracy on entries carried at far more bits than they work at
+            with ctx.workprec(prec + 16):
+                _NODES[n, prec] = (tuple(+x for x in xs), tuple(+w for w in ws))
+            return _NODES[n, prec]
+    half = _read_rule(n, prec)
+    if half is None:
+        with ctx.workprec(prec + 16):
+            half = [arb.legendre_p_root(n, k, weight=True) for k in range((n + 1) // 2)]
+        _write_rule(n, prec, half)
+    with ctx.workprec(prec + 16):  # negation rounds too: keep it inside
+        xs = [x for x, _ in half] + [-x for x, _ in reversed(half[: n // 2])]
+        ws = [w for _, w in half] + [w for _, w in reversed(half[: n // 2])]
+    if len(_NODES) >= 24:
+        _NODES.pop(next(iter(_NODES)))
+    _NODES[n, prec] = (tuple(xs), tuple(ws))
+    return _NODES[n, prec]
 
 
-@lru_cache(maxsize=32)
+_CHEB = {}
+
+
 def chebyshev_matrix(n, prec, degree):
-    """T_k(x_j) for k <= degree at the n Gauss-Legendre nodes, as arb_mat."""
+    """T_k(x_j) for k <= degree at the n Gauss-Legendre nodes, as arb_mat;
+    one computed at a higher precision or degree serves."""
+    for (m, p, d), T in _CHEB.items():
+        if m == n and p >= prec and d == degree:
+            return T
     xs, _ = gauss_legendre(n, prec)
     with ctx.workprec(prec):
         rows = [[arb(1)] * n, list(xs)]
         for _ in range(2, degree + 1):
             rows.append([2 * x * t1 - t0 for x, t1, t0 in zip(xs, rows[-1], rows[-2])])
-        return arb_mat(rows[: degree + 1])
+        T = arb_mat(rows[: degree + 1])
+    if len(_CHEB) >= 8:
+        _CHEB.pop(next(iter(_CHEB)))
+    _CHEB[n, prec, degree] = T
+    return T
 
 
 def _model_profile(coef, domain):
@@ -174,48 +273,88 @@ def _exp_i(theta):
     return acb(0, theta).exp()
 
 
-def _gl_pass(coef_rows, domain, mus, prec, n, grad_ks=()):
-    """One Gauss-Legendre evaluation at n nodes and prec bits.
+def _is_even(coef_rows, domain):
+    """All rows even in q on a domain symmetric about 0 (odd Chebyshev
+    coefficients zero): then Z(mu) is real and the nodes pair up."""
+    a, b = domain
+    return a == -b and all(c == 0 for row in coef_rows for c in row[1::2])
 
-    Returns (ratios, log_z0, grad0): ratios[r][k] = Z_r(mu_k) / Z_r(0) as acb
-    for every coefficient row, followed by one row per k in ``grad_ks`` holding
-    Int T_k(x) exp(p_0 + i mu q) dq / Z_0(0) (the derivative of Z_0 with
-    respect to c_k); grad0[k] is the same at mu = 0."""
+
+def _gl_pass(coef_rows, domain, pieces, n, grad_ks=()):
+    """One Gauss-Legendre evaluation at n nodes for every piece (mus, prec)
+    of a mu list.
+
+    The model values and weights are computed once, at the highest precision
+    of the pieces, and rounded for each piece (Arb's matrix products are
+    slow on entries longer than the working precision). Nodes whose weight
+    lies below 2^-(prec + 16) of the largest in every row are left out of
+    that piece, their total weight added to the radius (a rigorous bound,
+    since |exp(i mu q)| = 1). For even models only the nodes x >= 0 are used
+    (paired weights) and exp(i mu q) becomes cos(mu q).
+
+    Returns (per piece: ratios, log_z0, grad0): ratios[r][k] = Z_r(mu_k) /
+    Z_r(0) as acb for every coefficient row, followed by one row per k in
+    ``grad_ks`` holding Int T_k(x) exp(p_0 + i mu q) dq / Z_0(0) (the
+    derivative of Z_0 with respect to c_k); grad0[k] is the same at mu = 0."""
     degree = max([len(c) for c in coef_rows] + [max(grad_ks, default=0) + 1]) - 1
-    R, K = len(coef_rows), len(mus)
-    with ctx.workprec(prec):
-        xs, ws = gauss_legendre(n, prec)
-        T = chebyshev_matrix(n, prec, degree)
+    R = len(coef_rows)
+    top = max(p for _, p in pieces)
+    even = _is_even(coef_rows, domain)
+    with ctx.workprec(top):
+        xs, ws = gauss_legendre(n, top)
+        T = chebyshev_matrix(n, top, degree)
+        keep = range(n)
+        if even:
+            keep = [j for j in range(n) if xs[j] >= 0]  # the first (n + 1) // 2
         cm = arb_mat([[arb(float(c)) for c in row] + [arb(0)] * (degree + 1 - len(row))
                       for row in coef_rows])
         P = cm * T
         a, b = arb(domain[0]), arb(domain[1])
         half, mid = (b - a) / 2, (a + b) / 2
-        qs = [mid + half * x for x in xs]
-        W, z0, log_z0 = [], [], []
+        qs = [mid + half * xs[j] for j in keep]
+        wts = [ws[j] * (2 if even and not xs[j].is_zero() else 1) for j in keep]
+        W, z0, log_z0, expo = [], [], [], []
         for r in range(R):
-            row = [P[r, j] for j in range(n)]
-            shift = arb(max(float(v.mid()) for v in row))
-            wr = [w * (v - shift).exp() for w, v in zip(ws, row)]
+            vals = [P[r, j] for j in keep]
+            shift = arb(max(float(v.mid()) for v in vals))
+            expo.append([float(v.mid()) - float(shift.mid()) for v in vals])
+            wr = [w * (v - shift).exp() for w, v in zip(wts, vals)]
             s = sum(wr, arb(0))
             W.append(wr)
             z0.append(s)
             log_z0.append(float(shift.mid()) + float((s * half).log().mid()))
         grad0 = []
         for k in grad_ks:
-            W.append([w * T[k, j] for j, w in enumerate(W[0])])
+            W.append([w * T[k, j] for w, j in zip(W[0], keep)])
             z0.append(z0[0])
             grad0.append(sum(W[-1], arb(0)) / z0[0])
-        Z = _fourier_rows(W, qs, mus)
-        ratios = [[Z[r][k] / z0[r] for k in range(K)] for r in range(len(W))]
-    return ratios, log_z0, grad0
+            expo.append(expo[0])
+    out = []
+    for mus, prec in pieces:
+        with ctx.workprec(prec):
+            # nodes whose weight is below 2^-(prec + 16) in every row
+            cut = -(prec + 16) * math.log(2)
+            used = [i for i in range(len(qs)) if max(e[i] for e in expo) > cut]
+            gone = sorted(set(range(len(qs))) - set(used))
+            dropped = [sum((W[r][i] for i in gone), arb(0)) for r in range(len(W))] \
+                if gone else None
+            Wp = [[+W[r][i] for i in used] for r in range(len(W))]
+            qp = [+qs[i] for i in used]
+            Z = _fourier_rows(Wp, qp, mus, even)
+            if dropped is not None:
+                Z = [[z + acb(arb(0, dropped[r].abs_upper()), arb(0, dropped[r].abs_upper()))
+                      for z in Z[r]] for r in range(len(W))]
+            ratios = [[z / z0[r] for z in Z[r]] for r in range(len(W))]
+        out.append((ratios, log_z0, grad0))
+    return out
 
 
-def _fourier_rows(W, qs, mus):
-    """sum_j W[r][j] exp(i mu_k q_j) for every row r and mu_k, as matrix
-    products. On an even mu grid with few rows, exp(i mu q) factorises
-    (G F, see the module docstring); otherwise E = exp(i mu q) is built
-    (by rotation on an even grid) and multiplied as two real matrices."""
+def _fourier_rows(W, qs, mus, even=False):
+    """sum_j W[r][j] exp(i mu_k q_j) (cos(mu_k q_j) when ``even``) for every
+    row r and mu_k, as matrix products. On an even mu grid with few rows,
+    exp(i mu q) factorises (G F, see the module docstring); otherwise
+    E = exp(i mu q) is built (by rotation on an even grid) and multiplied as
+    real matrices."""
     R, K, n = len(W), len(mus), len(qs)
     h = uniform_step(mus)
     if h is not None and K >= 16:
@@ -224,14 +363,35 @@ def _fourier_rows(W, qs, mus):
         G = [_powers(_exp_i(_arb(mus[0]) * q), _exp_i(_arb(B * h) * q), A) for q in qs]
         F = [_powers(acb(1), _exp_i(_arb(h) * q), B) for q in qs]
         if R * A < K:
+            if even:
+                # Re(G F) = Re G Re F - Im G Im F, with real W
+                Mc = arb_mat([[W[r][j] * G[j][i].real for j in range(n)]
+                              for r in range(R) for i in range(A)])
+                Ms = arb_mat([[W[r][j] * G[j][i].imag for j in range(n)]
+                              for r in range(R) for i in range(A)])
+                Zc = Mc * arb_mat([[f.real for f in row] for row in F])
+                Zs = Ms * arb_mat([[f.imag for f in row] for row in F])
+                return [[acb(Zc[r * A + k // B, k % B] - Zs[r * A + k // B, k % B])
+                         for k in range(K)] for r in range(R)]
             M = acb_mat([[W[r][j] * G[j][i] for j in range(n)] for r in range(R) for i in range(A)])
             Zm = M * acb_mat(F)
             return [[Zm[r * A + k // B, k % B] for k in range(K)] for r in range(R)]
-        E = [[g * f for g in G[j] for f in F[j]][:K] for j in range(n)]
+        if even:
+            # rotation keeps ball radii growing linearly (a three-term cosine
+            # recurrence would let them grow geometrically)
+            E = [[z.real for z in _powers(_exp_i(_arb(mus[0]) * q), _exp_i(_arb(h) * q), K)]
+                 for q in qs]
+        else:
+            E = [[g * f for g in G[j] for f in F[j]][:K] for j in range(n)]
     else:
         mus_arb = [_arb(m) for m in mus]
         E = [[_exp_i(m * q) for m in mus_arb] for q in qs]
+        if even:
+            E = [[e.real for e in row] for row in E]
     Wm = arb_mat(W)
+    if even:
+        re = Wm * arb_mat(E)
+        return [[acb(re[r, k]) for k in range(K)] for r in range(R)]
     re = Wm * arb_mat([[e.real for e in row] for row in E])
     im = Wm * arb_mat([[e.imag for e in row] for row in E])
     return [[acb(re[r, k], im[r, k]) for k in range(K)] for r in range(R)]
@@ -250,104 +410,168 @@ def _relative_radius(z):
     return mpmath.inf if mag == 0 else rad / mag
 
 
+def _chunks(mus):
+    """Contiguous index ranges of the mu list that get their own working
+    precision: four on an even grid of at least 64 points (each piece is
+    itself an even grid), else one."""
+    K = len(mus)
+    if K < 64 or uniform_step(mus) is None:
+        return [(0, K)]
+    edges = [round(K * i / 4) for i in range(5)]
+    return [(edges[i], edges[i + 1]) for i in range(4)]
+
+
+def _check_set(mus, values, chunks):
+    """Where the quadrature is checked by refinement, as (the piece checked
+    whole, further single indices): the whole piece with the largest |mu| (the Gauss-Legendre error bound on the
+    Bernstein ellipse grows with |mu|, Trefethen ATAP ch. 19), every local
+    minimum of |Z| on the grid (a nearby zero asks the most relative
+    accuracy), and the ends; on short lists every mu."""
+    K = len(mus)
+    top = max(chunks, key=lambda c: max(abs(mus[k]) for k in range(*c)))
+    if len(chunks) == 1:
+        return top, []
+    picked = {0, K - 1}
+    mags = [abs_mid(v) for v in values]
+    for k in range(1, K - 1):
+        if mags[k] <= mags[k - 1] and mags[k] <= mags[k + 1]:
+            picked.add(k)
+    return top, sorted(k for k in picked if not top[0] <= k < top[1])
+
+
 def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
                         gradient=()):
-    """Z(mu)/Z(0) for Chebyshev models sharing one domain, with the working
-    precision raised from the cancellation depth and the node count raised
-    until an n- and a 1.5 n-point rule agree to ``digits``. A mu whose
-    digits cannot be reached within MAX_PREC bits and MAX_NODES nodes is
-    marked unresolved (its value and quad_err still tell what was reached).
+    """Z(mu)/Z(0) for Chebyshev models sharing one domain.
 
-    Only the first ``check_rows`` models (default: all) steer the precision
-    and node count; the rest (replicas) are evaluated once with the rule so
-    found, and their quad_err is not estimated (None). ``gradient`` lists
-    coefficient indices k whose derivatives dZ_0/dc_k are wanted: they come
-    back in ``Transform.gradient`` as (rows over k of Int T_k exp(p_0 + i mu q)
-    / Z_0(0), the same at mu = 0)."""
+    The working precision is chosen per piece of the mu list from the
+    cancellation depth (first estimated from the model's variance, then
+    raised until the balls of the first ``check_rows`` models carry
+    ``digits``); every row is evaluated with an n-point Gauss-Legendre rule
+    and the first row again with a 1.5 n-point rule at the mu of
+    :func:`_check_set`; n is raised until the two agree to ``digits``. The
+    quad_err of a mu not in the check set is the largest disagreement found
+    at a checked mu of equal or larger |mu| (the error bound grows with |mu|).
+    A mu whose digits cannot be reached within MAX_PREC bits and MAX_NODES
+    nodes is marked unresolved (its value and quad_err still tell what was
+    reached).
+
+    Rows past ``check_rows`` (replicas, default: none) ride along with the
+    same rule; their quad_err is None. ``gradient`` lists coefficient indices
+    k whose derivatives dZ_0/dc_k are wanted: they come back in
+    ``Transform.gradient`` as (rows over k of Int T_k exp(p_0 + i mu q) /
+    Z_0(0), the same at mu = 0)."""
     mus = as_fractions(mus)
+    K = len(mus)
     domain = models[0].domain
     if any(m.domain != domain for m in models):
         raise ValueError("models in one batch must share their domain")
-    all_rows = [list(m.coef) for m in models]
+    width = max(len(m.coef) for m in models)
+    rows = [list(m.coef) + [0.0] * (width - len(m.coef)) for m in models]
     check_rows = len(models) if check_rows is None else check_rows
-    coef_rows = all_rows[:check_rows]
     var, pmax = _model_profile(models[0].coef, domain)
     half = 0.5 * (domain[1] - domain[0])
-    mu_max = max(abs(float(m)) for m in mus)
-    depth = max(float(m) ** 2 * var / (2 * math.log(10)) for m in mus)
-    degree = max(len(c) for c in all_rows) - 1
-    # starting node count: the oscillation (mu half-range radians), the
-    # degree, and the width of the peak of rho in window units; the
-    # refinement loop below raises it where this is not enough
-    n = _on_ladder(24 + 0.6 * degree + 0.7 * mu_max * half
-                   + 0.5 * math.sqrt(2.3 * (depth + digits + 5) / max(var, 1e-300)) * half)
-    prec = precision_bits(depth, digits, pmax, n)
+    degree = max(len(c) for c in rows) - 1
+    depths = [float(m) ** 2 * var / (2 * math.log(10)) for m in mus]
+    # starting node count from the Gauss-Legendre error bound on the
+    # Bernstein ellipse (Trefethen, ATAP ch. 19) for exp(p) exp(i omega x)
+    # with p near a Gaussian of width sigma_x in window units: the error
+    # exp(-2 n s + omega s + s^2 / (2 sigma_x^2)) must fall below
+    # 10^-(D + digits); the best s gives n = omega/2 + sqrt(ln10 (D+digits)/2)/sigma_x.
+    sigma_x = max(math.sqrt(max(var, 0.0)) / half, 1e-6)
+    omega = max(abs(float(m)) for m in mus) * half
+    n = _on_ladder(1.1 * (omega / 2 + math.sqrt(1.15 * (max(depths) + digits + 5)) / sigma_x)
+                   + 0.5 * degree + 16)
+    chunks = _chunks(mus)
+    precs = [precision_bits(max(depths[a:b]), digits, pmax, n) for a, b in chunks]
     tol = mpmath.mpf(10) ** (-(digits + 1))
-    done = {}
-
-    def gl(nodes):
-        if (nodes, prec) not in done:
-            done[nodes, prec] = _gl_pass(coef_rows, domain, mus, prec, nodes)[:2]
-        return done[nodes, prec]
-
+    grad_ks = tuple(gradient)
+    results = [None] * len(chunks)
     while True:
-        n1 = _on_ladder(n + 1)
-        z_n, _ = gl(n)
-        z_n1, log_z0 = gl(n1)
-        quad = [[upper(z_n[r][k] - z_n1[r][k]) for k in range(len(mus))]
-                for r in range(check_rows)]
-        need_prec, need_nodes = prec, False
-        resolved = []
-        for k in range(len(mus)):
-            ok = True
-            for r in range(check_rows):
-                z = z_n1[r][k]
-                rel_rad = _relative_radius(z)
-                if rel_rad > tol / 10:
-                    ok = False
-                    if rel_rad == mpmath.inf or rel_rad >= 1:
-                        need_prec = max(need_prec, 2 * prec)
-                    else:
-                        extra = float(mpmath.log(rel_rad * 10 / tol, 2))
-                        need_prec = max(need_prec, int(math.ceil((prec + extra + 32) / 64) * 64))
-                elif quad[r][k] > tol * abs_mid(z):
-                    ok, need_nodes = False, True
-            resolved.append(ok)
-        if all(resolved):
+        values, log_z0, grad0 = [[] for _ in rows], None, None
+        grad_rows = [[] for _ in grad_ks]
+        prec_ok = [True] * K
+        raise_any = False
+        # one rule (and one Chebyshev matrix) at the top precision serves every piece
+        chebyshev_matrix(n, max(precs), max(degree, max(grad_ks, default=0)))
+        gauss_legendre(_on_ladder(1.5 * n), max(precs))
+
+        todo = [c for c in range(len(chunks))
+                if results[c] is None or results[c][0] != (n, precs[c])]
+        if todo:
+            fresh = _gl_pass(rows, domain, [(mus[chunks[c][0]:chunks[c][1]], precs[c])
+                                            for c in todo], n, grad_ks)
+            for c, res in zip(todo, fresh):
+                results[c] = ((n, precs[c]), res)
+        for c, (a, b) in enumerate(chunks):
+            ratios, log_z0, g0 = results[c][1]
+            grad0 = grad0 or g0
+            for r in range(len(rows)):
+                values[r].extend(ratios[r])
+            for i in range(len(grad_ks)):
+                grad_rows[i].extend(ratios[len(rows) + i])
+            worst = mpmath.mpf(0)
+            for k in range(a, b):
+                rel = max(_relative_radius(values[r][k]) for r in range(check_rows))
+                if rel > tol / 10:
+                    prec_ok[k] = False
+                    worst = max(worst, rel)
+            if worst > 0 and precs[c] < MAX_PREC:
+                extra = 2 * precs[c] if worst == mpmath.inf or worst >= 1 else \
+                    precs[c] + float(mpmath.log(worst * 10 / tol, 2)) + 32
+                precs[c] = min(MAX_PREC, int(math.ceil(extra / 64) * 64))
+                results[c] = None
+                raise_any = True
+        if raise_any:
+            continue
+        n1 = _on_ladder(1.5 * n)
+        top, extras = _check_set(mus, values[0], chunks)
+        groups = []
+        for c, (a, b) in enumerate(chunks):
+            ks = [k for k in extras if a <= k < b] if (a, b) != top else list(range(a, b))
+            if ks:
+                groups.append((ks, precs[c]))
+        fine = _gl_pass(rows[:1], domain, [([mus[k] for k in ks], p) for ks, p in groups], n1)
+        diffs = {}
+        for (ks, _), (ratios, _, _) in zip(groups, fine):
+            diffs.update({k: upper(difference(values[0][k], z)) for k, z in zip(ks, ratios[0])})
+        checked = sorted(diffs)
+        quad_ok = all(diffs[k] <= tol * abs_mid(values[0][k]) for k in checked)
+        if quad_ok or n1 > MAX_NODES:
             break
-        if need_prec > prec:
-            prec = need_prec
-        elif need_nodes:
-            n = n1
-        if prec > MAX_PREC or n > MAX_NODES:
-            break
-    for r in range(check_rows):
-        for k in range(len(mus)):
-            quad[r][k] += upper(acb(z_n1[r][k].real.rad(), z_n1[r][k].imag.rad()))
-    grad = None
-    if len(all_rows) > check_rows or gradient:
-        prec = min(prec, MAX_PREC)
-        rest, rest_log, grad0 = _gl_pass(all_rows[check_rows:] or all_rows[:1], domain, mus,
-                                         prec, n1, grad_ks=tuple(gradient))
-        extra = len(all_rows) - check_rows
-        z_n1 = z_n1 + rest[:extra]
-        log_z0 = log_z0 + rest_log[:extra]
-        quad = quad + [[None] * len(mus) for _ in range(extra)]
-        if gradient:
-            # gradient rows are relative to the first row of that pass
-            if extra:
-                raise ValueError("ask for gradients and replicas in separate calls")
-            grad = (rest[1:], grad0)
+        n = n1
+    resolved = []
+    quad = [[None] * K for _ in rows]
+    # the largest disagreement at a checked mu of equal or larger |mu|
+    order = sorted(checked, key=lambda j: abs(mus[j]), reverse=True)
+    suffix, running = [], mpmath.mpf(0)
+    for j in order:
+        running = max(running, diffs[j])
+        suffix.append((abs(mus[j]), running))
+    suffix.reverse()   # increasing |mu|, running max over larger |mu|
+    keys = [m for m, _ in suffix]
+    for k in range(K):
+        if k in diffs:
+            bound = diffs[k]
+        else:
+            i = bisect.bisect_left(keys, abs(mus[k]))
+            bound = suffix[i][1] if i < len(suffix) else suffix[-1][1]
+        ok = prec_ok[k] and bound <= tol * abs_mid(values[0][k])
+        resolved.append(ok)
+        for r in range(check_rows):
+            z = values[r][k]
+            quad[r][k] = bound + upper(acb(z.real.rad(), z.imag.rad()))
+    prec = max(precs)
+    grad = (grad_rows, grad0) if grad_ks else None
     if certify:
-        cert, cert_quad, cert_ok = _certified(models[:check_rows], mus, digits, z_n1, prec)
-        z_n1 = cert + z_n1[check_rows:]
+        cert, cert_quad, cert_ok = _certified(models[:check_rows], mus, digits, values, prec)
+        values = cert + values[check_rows:]
         quad = cert_quad + quad[check_rows:]
         resolved = [a and b for a, b in zip(resolved, cert_ok)]
         method = "acb.integral"
     else:
         method = "gauss-legendre"
-    return Transform(values=z_n1, quad_err=quad, log_z0=log_z0, resolved=resolved,
-                     prec=min(prec, MAX_PREC), nodes=n1, method=method, mus=mus, gradient=grad)
+    return Transform(values=values, quad_err=quad, log_z0=log_z0, resolved=resolved,
+                     prec=prec, nodes=n, method=method, mus=mus, gradient=grad)
 
 
 def _clenshaw(coef, x):

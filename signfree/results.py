@@ -17,6 +17,7 @@ quadrature -> unresolved).
 """
 import math
 from dataclasses import dataclass, field
+from functools import cached_property
 from fractions import Fraction
 
 import mpmath
@@ -39,17 +40,17 @@ class Row:
     degree: int = None
     digits: int = 12
 
-    @property
+    @cached_property
     def magnitude(self):
         return abs(self.value)
 
-    @property
+    @cached_property
     def total_err(self):
         """Sum of every error that is known (a conservative combination)."""
         return sum((e for e in (self.quad_err, self.model_err, self.edge_err, self.stat_err)
                     if e is not None), mpmath.mpf(0))
 
-    @property
+    @cached_property
     def status(self):
         mag = self.magnitude
         if (not self.resolved or self.quad_err >= mag
@@ -66,7 +67,7 @@ class Row:
                 self.dominant_error, "unresolved")
         return "ok"
 
-    @property
+    @cached_property
     def last_digit(self):
         """Decimal exponent of the last digit the errors support (the
         position of the total error's leading digit, and no finer than the
@@ -112,7 +113,7 @@ class Row:
             return float(-mpmath.log10(mag + self.total_err))
         return float(-mpmath.log10(mag))
 
-    @property
+    @cached_property
     def naive_log10_samples(self):
         """log10 of the number of phase-quenched samples that direct
         reweighting would need for the same relative error r: the phase
@@ -123,7 +124,7 @@ class Row:
             return None
         return float(-2 * mpmath.log10(err / mag) - 2 * mpmath.log10(mag))
 
-    @property
+    @cached_property
     def dominant_error(self):
         """The largest error source: 'noise', 'model', 'edge' or 'precision'."""
         parts = {"noise": self.stat_err, "model": self.model_err, "edge": self.edge_err,
@@ -141,7 +142,7 @@ class Row:
         mag = self.magnitude
         value = -mpmath.log(mag) / volume
         err = self.total_err / mag / volume
-        stat = "" if self.stat_err is None else _sci(self.stat_err / mag / volume, 2)
+        stat = "" if self.stat_err is None else error_string(self.stat_err / mag / volume)
         return _round_to_error(value, err, self.digits), stat
 
 
@@ -291,15 +292,17 @@ def edge_error(model, log_z0, mu):
     leading term of integration by parts; a denominator is kept at least
     1 / (q_max - q_min) so that a density that does not fall off still
     counts as fully edge-limited)."""
+    return edge_errors(model, log_z0, [mu])[0]
+
+
+def edge_errors(model, log_z0, mus):
+    """:func:`edge_error` for many mu (the model is evaluated once)."""
     a, b = model.domain
     floor_ = 1.0 / (b - a)
-    total = mpmath.mpf(0)
-    for end in (a, b):
-        p = float(model.log_density(end))
-        dp = float(model.derivative(end))
-        denom = max(math.hypot(dp, float(mu)), floor_)
-        total += mpmath.exp(mpmath.mpf(p) - log_z0) / denom
-    return total
+    ends = [(mpmath.exp(mpmath.mpf(float(model.log_density(e))) - log_z0),
+             float(model.derivative(e))) for e in (a, b)]
+    return [sum((r / max(math.hypot(dp, float(mu)), floor_) for r, dp in ends), mpmath.mpf(0))
+            for mu in mus]
 
 
 def density_rises_at_edge(model):

@@ -102,6 +102,29 @@ def spread_mp(method, rows):
     return out
 
 
+def spread_relative(method, central, rows):
+    """:func:`spread_mp` for acb balls, fast: each replica value is divided
+    by the central value in ball arithmetic at 64 bits, the spread of the
+    ratios taken in double precision and scaled back by |central| (values
+    may lie far below 1e-308). A column whose central ball contains zero is
+    handled by :func:`spread_mp`."""
+    from flint import ctx
+    out = []
+    for k, z0 in enumerate(central):
+        with ctx.workprec(64):
+            ok = not z0.contains(0)
+            ratios = [complex(float((z / z0).real.mid()), float((z / z0).imag.mid()))
+                      for z in (row[k] for row in rows)] if ok else None
+        if ok and all(np.isfinite(r) for r in ratios):
+            mag = mpmath.hypot(engine.to_mpf(z0.real), engine.to_mpf(z0.imag))
+            out.append(mpmath.mpf(float(spread(method, [[r] for r in ratios])[0])) * mag)
+        else:
+            col = [mpmath.mpc(engine.to_mpf(row[k].real), engine.to_mpf(row[k].imag))
+                   for row in rows]
+            out.append(spread_mp(method, [[c] for c in col])[0])
+    return out
+
+
 def coefficient_covariance(density, model, sigma=None):
     """(ks, C): the fitted coefficient indices and their covariance
     (A^T S^-2 A)^-1 for the weighted least-squares fit (Golub & Van Loan,
@@ -119,6 +142,7 @@ def coefficient_covariance(density, model, sigma=None):
 def propagate_covariance(values, gradient, ks, cov):
     """Linear propagation through the integral (module docstring). values:
     acb per mu; gradient: engine.Transform.gradient for the same ks."""
+    from flint import ctx
     rows, grad0 = gradient
     errs = []
     for k, z in enumerate(values):
@@ -128,7 +152,8 @@ def propagate_covariance(values, gradient, ks, cov):
             continue
         v = []
         for i in range(len(ks)):
-            g = rows[i][k] - z * grad0[i]
+            with ctx.workprec(engine.MAX_PREC):
+                g = rows[i][k] - z * grad0[i]
             v.append(complex(mpmath.mpc(engine.to_mpf(g.real), engine.to_mpf(g.imag)) / R))
         v = np.array(v)
         var = v.real @ cov @ v.real + v.imag @ cov @ v.imag

@@ -38,7 +38,7 @@ def gaussian_slopes(path, sigma=3.0, half_range=60.0, width=0.5, noise=0.0, seed
         f.write(header + "q,width,slope,slope_err\n")
         for c in centres:
             s = -c / sigma ** 2 + noise * rng.standard_normal()
-            f.write(f"{float(c)!r},{width!r},{float(s)!r},{max(noise, 1e-9)!r}\n")
+            f.write(f"{float(c)!r},{width!r},{float(s)!r},{max(noise, 1e-13)!r}\n")
     return path
 
 
