@@ -88,35 +88,53 @@ def analyse(density, mus, model="chebyshev", degree=None, digits=12, certify=Fal
     central, neighbours, fit = smoothing_models(density, model, degree, parity)
     method = uncertainty.choose_method(density, errors, central.label)
     batch = [central] + neighbours
-    resamples, gradient = [], ()
+    resamples, neighbour_resamples, gradient = [], [], ()
     if method in ("jackknife", "bootstrap"):
         if method == "bootstrap" and seed is None:
             seed = int(np.random.SeedSequence().entropy % (1 << 32))
         values = uncertainty.resampled_values(density, method, bootstrap_samples, seed)
         resamples = uncertainty.resampled_models(density, central, values)
+        if method == "jackknife":
+            neighbour_resamples = [uncertainty.resampled_models(density, m, values)
+                                   for m in neighbours]
     elif method == "covariance":
-        ks, cov = uncertainty.coefficient_covariance(density, central)
+        ks, factor = uncertainty.coefficient_covariance(density, central)
         gradient = ks
-    tr = type(central).transform_batch(batch + resamples, mus, digits=digits, certify=certify,
+    extra = resamples + [m for group in neighbour_resamples for m in group]
+    tr = type(central).transform_batch(batch + extra, mus, digits=digits, certify=certify,
                                        check_rows=len(batch), gradient=gradient)
+    n_res = len(resamples)
+    rep_rows = tr.values[len(batch):len(batch) + n_res]
     if resamples:
-        stat = uncertainty.spread_relative(method, tr.values[0], tr.values[len(batch):])
+        stat = uncertainty.spread_relative(method, tr.values[0], rep_rows)
     elif gradient:
-        stat = uncertainty.propagate_covariance(tr.values[0], tr.gradient, ks, cov)
+        stat = uncertainty.propagate_covariance(tr.values[0], tr.gradient, ks, factor)
     else:
         stat = [None] * len(tr.mus)
+    # per neighbour: the change of the value, and (jackknife) its spread
+    diffs, diff_noise = [], []
+    for i in range(1, len(batch)):
+        diffs.append([engine.difference(tr.values[0][k], tr.values[i][k])
+                      for k in range(len(tr.mus))])
+        if neighbour_resamples:
+            start = len(batch) + n_res * i
+            rows_i = [[engine.difference(a, b) for a, b in zip(rep_rows[j], tr.values[start + j])]
+                      for j in range(n_res)]
+            diff_noise.append(uncertainty.spread_relative(method, diffs[-1], rows_i))
     rows = []
     edges = edge_errors(central, tr.log_z0[0], tr.mus)
     with mpmath.workdps(digits + 10):  # the values keep every digit asked for
         for k, mu in enumerate(tr.mus):
             z = tr.values[0][k]
-            model_err = max((engine.upper(engine.difference(z, tr.values[r][k]))
-                              for r in range(1, len(batch))),
-                            default=None)
+            model_err = model_noise = None
+            if diffs:
+                i = max(range(len(diffs)), key=lambda i: engine.upper(diffs[i][k]))
+                model_err = engine.upper(diffs[i][k])
+                model_noise = diff_noise[i][k] if diff_noise else None
             rows.append(Row(mu=mu, value=_mpc(z), quad_err=tr.quad_err[0][k],
-                            model_err=model_err, edge_err=edges[k],
-                            stat_err=stat[k], resolved=tr.resolved[k], degree=central.degree,
-                            digits=digits))
+                            model_err=model_err, edge_err=edges[k], stat_err=stat[k],
+                            model_noise=model_noise, resolved=tr.resolved[k],
+                            degree=central.degree, digits=digits))
     volume = volume if volume is not None else density.volume
     info = {
         "model": central.label,

@@ -206,13 +206,31 @@ def fit_degree(density, degree, parity="none", y=None, sigma=None, domain=None):
 
 
 def candidate_degrees(kind, n_points, parity, max_degree=MAX_DEGREE):
+    """Degrees tried: from 2 (1 for odd parity), every one or every other
+    with parity, at most MAX_DEGREE and with at most 60% as many fitted
+    coefficients as data points (a fit that nearly interpolates its data
+    says nothing about ln rho between them)."""
     start = {"even": 2, "odd": 1}.get(parity, 2)
     step = 1 if parity == "none" else 2
     out = []
     for d in range(start, max_degree + 1, step):
-        if n_points - len(_basis(kind, d, parity)) >= 1:
+        m = len(_basis(kind, d, parity))
+        if n_points - m >= 1 and m <= max(3, int(0.6 * n_points)):
             out.append(d)
     return out
+
+
+def is_wild(density, model):
+    """True when the model rises more than 1 above its largest value at the
+    data between the data points (a fit that oscillates between its points
+    and would put spurious weight there)."""
+    a, b = model.domain
+    if density.kind == "slopes":
+        at_data = np.concatenate([density.q - density.width / 2, density.q + density.width / 2])
+    else:
+        at_data = _fit_data(density)[0]
+    fine = np.linspace(a, b, 20 * len(at_data) + 1)
+    return float(np.max(model.log_density(fine))) > float(np.max(model.log_density(at_data))) + 1.0
 
 
 def chi2_sf(chi2, dof):
@@ -255,11 +273,13 @@ def _select(density, parity, sigma, degree=None, max_degree=MAX_DEGREE, chi2_sca
         consistent = _p_value(nested.model(degree).chi2, nested.model(degree).dof) >= P_ACCEPT
     else:
         chosen = next((d for d in degrees
-                       if _p_value(nested.model(d).chi2, nested.model(d).dof) >= P_ACCEPT), None)
+                       if _p_value(nested.model(d).chi2, nested.model(d).dof) >= P_ACCEPT
+                       and not is_wild(density, nested.model(d))), None)
         consistent = chosen is not None
         criterion = "smallest degree with P(chi2) >= 0.05"
         if chosen is None:
-            chosen = min(degrees, key=lambda d: nested.model(d).chi2 + 2 * (n - nested.model(d).dof))
+            tame = [d for d in degrees if not is_wild(density, nested.model(d))] or degrees[:1]
+            chosen = min(tame, key=lambda d: nested.model(d).chi2 + 2 * (n - nested.model(d).dof))
             criterion = "no degree consistent with the errors; minimum of AIC"
     i = degrees.index(chosen)
     above = degrees[i + 1: i + 3]

@@ -7,7 +7,8 @@ below 1e-308; they are mpmath numbers). Status, in order of precedence:
 
   unresolved     the wanted digits were not reached within the precision and
                  node limits, or quad_err or model_err >= |value|
-  noise_limited  the statistical error >= |value|
+  noise_limited  the statistical error >= |value|, or a model error >= |value|
+                 that is itself no larger than three times its statistical spread
   edge_limited   edge_err >= 10% of |value|: the finite data range may hide
                  a contribution as large as the value
   ok             otherwise
@@ -36,6 +37,7 @@ class Row:
     edge_err: mpmath.mpf
     model_err: mpmath.mpf = None
     stat_err: mpmath.mpf = None
+    model_noise: mpmath.mpf = None
     resolved: bool = True
     degree: int = None
     digits: int = 12
@@ -51,11 +53,20 @@ class Row:
                     if e is not None), mpmath.mpf(0))
 
     @cached_property
+    def model_err_is_noise(self):
+        """True when the model error is no larger than three times the statistical
+        spread of that change itself (known with jackknife replicas): it is
+        then noise of the larger fits rather than truncation."""
+        return (self.model_err is not None and self.model_noise is not None
+                and self.model_err <= 3 * self.model_noise)
+
+    @cached_property
     def status(self):
         mag = self.magnitude
-        if (not self.resolved or self.quad_err >= mag
-                or (self.model_err is not None and self.model_err >= mag)):
+        if not self.resolved or self.quad_err >= mag:
             return "unresolved"
+        if self.model_err is not None and self.model_err >= mag:
+            return "noise_limited" if self.model_err_is_noise else "unresolved"
         if self.stat_err is not None and self.stat_err >= mag:
             return "noise_limited"
         if self.edge_err >= EDGE_FRACTION * mag:
@@ -106,10 +117,10 @@ class Row:
 
     @property
     def cancel_orders(self):
-        """-log10 |Z(mu)/Z(0)|; for an unresolved row the supported lower
-        bound -log10(|value| + total error)."""
+        """-log10 |Z(mu)/Z(0)|; for a row without one supported digit the
+        supported lower bound -log10(|value| + total error)."""
         mag = self.magnitude
-        if self.status == "unresolved":
+        if self.last_digit is None:
             return float(-mpmath.log10(mag + self.total_err))
         return float(-mpmath.log10(mag))
 
@@ -131,7 +142,8 @@ class Row:
                  "precision": self.quad_err}
         if not self.resolved:
             return "precision"
-        return max((k for k in parts if parts[k] is not None), key=lambda k: parts[k])
+        top = max((k for k in parts if parts[k] is not None), key=lambda k: parts[k])
+        return "noise" if top == "model" and self.model_err_is_noise else top
 
     def delta_f(self, volume):
         """(Delta f, its statistical error) with Delta f = -ln|Z(mu)/Z(0)| / V,
@@ -246,11 +258,14 @@ class ResultTable:
 
     def sign_changes(self):
         """Brackets [mu_k, mu_k+1] where the real phase factor changes sign
-        between two neighbouring resolved rows whose imaginary parts are
-        negligible (real zeros of Z(mu))."""
+        between two neighbouring ok rows whose real parts exceed their total
+        errors and whose imaginary parts are negligible (real zeros of
+        Z(mu))."""
         out = []
         for a, b in zip(self.rows, self.rows[1:]):
-            if a.status == "unresolved" or b.status == "unresolved":
+            if a.status != "ok" or b.status != "ok":
+                continue
+            if any(abs(r.value.real) <= r.total_err for r in (a, b)):
                 continue
             if any(abs(r.value.imag) > r.total_err + abs(r.value.real) * 1e-6 for r in (a, b)):
                 continue
@@ -269,7 +284,7 @@ class ResultTable:
             value = rec["avg_phase"] or "(no digit)"
             cols = [rec["mu"], value, rec["avg_phase_imag"] or "", rec["avg_phase_err"] or "-",
                     _sci(r.total_err, 2),
-                    ("%s%s" % (">=" if r.status == "unresolved" else "", rec["cancel_orders"])),
+                    ("%s%s" % (">=" if r.last_digit is None else "", rec["cancel_orders"])),
                     rec["status"]]
             if reference is not None:
                 ref = reference.get(r.mu)

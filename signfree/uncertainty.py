@@ -15,6 +15,10 @@ C = (A^T S^-2 A)^-1 of the weighted least-squares fit is propagated linearly:
 dZ/dc_k = Int T_k(x) exp(p(q) + i mu q) dq, one more Fourier integral of the
 same kind, so that for R = Z(mu)/Z(0) and v_k = (dR/dc_k)/R,
   E|dR|^2 = |R|^2 (Re v^T C Re v + Im v^T C Im v).
+With jackknife replicas the neighbouring degrees (whose change of the value is
+the model error) are refitted in every resample too, so that the statistical
+spread of that change is known: a model error no larger than three times it
+is noise of the larger fits, and is labelled so.
 The covariance route is linear: where the analytic continuation amplifies
 noise strongly (large mu, high degree) the replica routes are the safer
 reference, and they agree with it where both apply (tests/test_uncertainty.py).
@@ -52,28 +56,43 @@ def choose_method(density, method="auto", model_label="chebyshev"):
 
 
 def resampled_values(density, method, samples=200, seed=None):
-    """Central values of every resample of the replicas (replica mean, or
-    pooled counts for a histogram)."""
+    """(central value, fit errors) of every resample of the replicas: the
+    replica mean (pooled counts for a histogram) and, when the density's
+    errors come from the replica scatter, that scatter recomputed from the
+    resample itself (keeping the central weights would miss their own noise
+    and its correlation with the data); otherwise the central errors (None
+    for histograms: Poisson errors of the resampled counts)."""
     reps = density.replicas
     R = reps.shape[0]
-    pool = np.sum if density.kind == "histogram" else np.mean
     if method == "jackknife":
-        return [pool(np.delete(reps, i, axis=0), axis=0) for i in range(R)]
-    rng = np.random.default_rng(seed)
-    return [pool(reps[rng.integers(0, R, R)], axis=0) for _ in range(samples)]
+        picks = [np.delete(np.arange(R), i) for i in range(R)]
+    else:
+        rng = np.random.default_rng(seed)
+        picks = [rng.integers(0, R, R) for _ in range(samples)]
+    central = _fit_data(density)[2]
+    out = []
+    for idx in picks:
+        sub = reps[idx]
+        if density.kind == "histogram":
+            out.append((sub.sum(axis=0), None))
+            continue
+        sigma = central
+        if density.error_source == "replicas":
+            sigma = sub.std(axis=0, ddof=1) / np.sqrt(len(idx))
+            sigma = np.where(sigma > 0, sigma, central)
+        out.append((sub.mean(axis=0), sigma))
+    return out
 
 
 def resampled_models(density, model, values):
-    """The central model's recipe applied to every resample."""
+    """The central model's recipe applied to every resample ((value, sigma)
+    pairs from :func:`resampled_values`)."""
     out = []
-    for v in values:
+    for v, sigma in values:
         d = dataclasses.replace(density, value=v, replicas=None)
         if isinstance(model, PiecewiseModel):
             out.append(PiecewiseModel.from_density(d))
         else:
-            _, _, sigma = _fit_data(density)
-            if density.kind == "histogram":
-                sigma = None  # Poisson errors of the resampled counts
             out.append(fit_degree(d, model.degree, model.parity, sigma=sigma))
     return out
 
@@ -126,22 +145,27 @@ def spread_relative(method, central, rows):
 
 
 def coefficient_covariance(density, model, sigma=None):
-    """(ks, C): the fitted coefficient indices and their covariance
-    (A^T S^-2 A)^-1 for the weighted least-squares fit (Golub & Van Loan,
-    Matrix Computations, 5.3)."""
+    """(ks, L): the fitted coefficient indices and a factor of their
+    covariance C = (A^T S^-2 A)^-1 = L L^T for the weighted least-squares fit,
+    from the QR factorisation of the weighted design, L = diag(1/scale) R^-1
+    (Golub & Van Loan, Matrix Computations, 5.3); C built this way is
+    positive semi-definite even where A^T A is near singular."""
     ks = _basis(density.kind, model.degree, model.parity)
     _, y, s = _fit_data(density)
     sigma = s if sigma is None else sigma
     A = _design(density, model.domain, ks) / sigma[:, None]
     scale = np.sqrt((A * A).sum(axis=0))
     scale[scale == 0] = 1.0
-    cov = np.linalg.inv((A / scale).T @ (A / scale)) / np.outer(scale, scale)
-    return ks, cov
+    _, R = np.linalg.qr(A / scale)
+    L = np.linalg.solve(R, np.eye(len(ks))) / scale[:, None]
+    return ks, L
 
 
-def propagate_covariance(values, gradient, ks, cov):
+def propagate_covariance(values, gradient, ks, factor):
     """Linear propagation through the integral (module docstring). values:
-    acb per mu; gradient: engine.Transform.gradient for the same ks."""
+    acb per mu; gradient: engine.Transform.gradient for the same ks;
+    factor: L with covariance L L^T, so the variance |L^T v|^2 is never
+    negative."""
     from flint import ctx
     rows, grad0 = gradient
     errs = []
@@ -156,6 +180,6 @@ def propagate_covariance(values, gradient, ks, cov):
                 g = rows[i][k] - z * grad0[i]
             v.append(complex(mpmath.mpc(engine.to_mpf(g.real), engine.to_mpf(g.imag)) / R))
         v = np.array(v)
-        var = v.real @ cov @ v.real + v.imag @ cov @ v.imag
-        errs.append(abs(R) * mpmath.sqrt(max(float(var), 0.0)))
+        var = np.sum((factor.T @ v.real) ** 2) + np.sum((factor.T @ v.imag) ** 2)
+        errs.append(abs(R) * mpmath.sqrt(float(var)))
     return errs

@@ -157,3 +157,25 @@ def test_bad_options_give_one_line_exit_2(tmp_path, args, word):
     assert res.returncode == 2
     assert len(res.stderr.strip().splitlines()) == 1 and word in res.stderr
     assert not (tmp_path / "out").exists()
+
+
+def test_run_lists_the_real_sign_changes(tmp_path):
+    # rho = (1 + c q^2) exp(-q^2/2) has Z(mu)/Z(0) = exp(-mu^2/2) (1 + c (1 - mu^2)) / (1 + c)
+    # (Gradshteyn & Ryzhik 3.896.4 and its second derivative in mu): one real
+    # zero at mu = sqrt(1 + 1/c). Exact ln rho on a grid, tiny stated errors.
+    c = 0.1
+    q = np.linspace(-8, 8, 161)
+    lnrho = np.log(1 + c * q ** 2) - q ** 2 / 2
+    src = tmp_path / "c.csv"
+    src.write_text("q,log_density,log_density_err\n" +
+                   "".join(f"{float(x)!r},{float(y)!r},1e-10\n" for x, y in zip(q, lnrho)))
+    res = signfree("run", src, "--mu", "0:4:41", "--out", "out", cwd=tmp_path)
+    assert res.returncode == 0, res.stderr
+    summary = json.loads((tmp_path / "out" / "summary.json").read_text())
+    zero = math.sqrt(1 + 1 / c)
+    assert summary["sign_changes"] == [[3.3, 3.4]]
+    assert 3.3 < zero < 3.4
+    rows = {float(r["mu"]): r for r in read_results(tmp_path / "out")}
+    for mu in (3.0, 3.5):
+        exact = math.exp(-mu ** 2 / 2) * (1 + c * (1 - mu ** 2)) / (1 + c)
+        assert float(rows[mu]["avg_phase"]) == pytest.approx(exact, rel=1e-6)
