@@ -61,10 +61,24 @@ def _degree(text):
         raise argparse.ArgumentTypeError(f"expected an integer or 'per-mu', got {text!r}")
 
 
-def build_parser():
+# subcommands whose modules are imported only when they are asked for
+# (matplotlib alone costs about a second of start-up)
+LAZY = {
+    "zeros": ("signfree.zeros", "add_zeros_parser",
+              "zeros of Z(mu) in a box of the complex mu plane"),
+    "compare": ("signfree.compare", "add_compare_parser",
+                "Chebyshev, cumulant and piecewise routes side by side"),
+    "report": ("signfree.report", "add_report_parser",
+               "analysis with figures and an offline HTML report"),
+}
+
+
+def build_parser(argv=None):
     parser = _Parser(prog="signfree", description="Phase factors and free-energy "
                      "differences from a measured density of states.")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    argv = sys.argv[1:] if argv is None else argv
+    wanted = next((a for a in argv if not a.startswith("-")), None)
     run = sub.add_parser("run", help="analyse density files")
     run.add_argument("input", nargs="+",
                      help="CSV file(s) (kind slopes, log_density or histogram)")
@@ -74,8 +88,16 @@ def build_parser():
     run.add_argument("--jobs", type=int, default=1, metavar="N",
                      help="analyse several inputs in N parallel processes")
     run.add_argument("--quiet", action="store_true", help="no progress display")
+    run.add_argument("--plots", action="store_true",
+                     help="also write the figures (fig_*.png and fig_*.pdf)")
     demo = sub.add_parser("demo", help="run the pipeline on the shipped demo data")
     demo.add_argument("--out", metavar="DIR", help="output folder (default: a new folder)")
+    for name, (module, adder, text) in LAZY.items():
+        if name == wanted:
+            import importlib
+            getattr(importlib.import_module(module), adder)(sub)
+        else:
+            sub.add_parser(name, help=text, add_help=False)
     return parser
 
 
@@ -174,6 +196,9 @@ def _analyse_one(job):
         result, files = run_files(path, args)
     except (InputError, ValueError) as exc:
         return path, None, str(exc)
+    if getattr(args, "plots", False):
+        from signfree.report import figures_files
+        files.update(figures_files(result))
     text = io.StringIO()
     _report(result, None, out=text)
     return path, text.getvalue(), files
@@ -291,10 +316,12 @@ def cmd_demo(args):
 
 
 def main(argv=None):
-    args = build_parser().parse_args(argv)
+    args = build_parser(argv).parse_args(argv)
     if args.command == "run":
         return cmd_run(args)
-    return cmd_demo(args)
+    if args.command == "demo":
+        return cmd_demo(args)
+    return args.handler(args)
 
 
 if __name__ == "__main__":
