@@ -23,6 +23,16 @@ _API = {
     "analyse": "signfree.analysis",
     "parse_mu_spec": "signfree.analysis",
     "ResultTable": "signfree.results",
+    "read_samples": "signfree.samples",
+    "read_any": "signfree.samples",
+    "binned_error": "signfree.samples",
+    "sample_cumulants": "signfree.cumulants",
+    "model_cumulants": "signfree.cumulants",
+    "CumulantModel": "signfree.cumulants",
+    "find_zeros": "signfree.zeros",
+    "compare": "signfree.compare",
+    "make_figures": "signfree.report",
+    "html_report": "signfree.report",
 }
 
 __all__ = sorted(_API)

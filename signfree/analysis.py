@@ -19,7 +19,7 @@ from signfree.chebyshev import fit_chebyshev
 from signfree.piecewise import PiecewiseModel
 from signfree.results import ResultTable, Row, density_rises_at_edge, edge_errors
 
-MODELS = ("chebyshev", "piecewise")
+MODELS = ("chebyshev", "piecewise", "cumulant")
 
 
 def parse_mu_spec(spec):
@@ -73,14 +73,20 @@ def smoothing_models(density, model="chebyshev", degree=None, parity=None):
 
 
 def analyse(density, mus, model="chebyshev", degree=None, digits=12, certify=False,
-            volume=None, parity=None, errors="auto", bootstrap_samples=200, seed=None):
+            volume=None, parity=None, errors="auto", bootstrap_samples=200, seed=None,
+            order=4, samples=None):
     """Smooth the density, compute Z(mu)/Z(0) for every mu and return an
     :class:`Analysis` whose table carries the error budget per mu.
 
     ``degree`` None chooses it from the errors, an integer fixes it, and
     'per-mu' picks for each mu the candidate minimising the combined
     statistical and model error. ``errors`` is one of
-    :data:`signfree.uncertainty.METHODS`."""
+    :data:`signfree.uncertainty.METHODS`. ``model='cumulant'`` sums the
+    cumulant expansion to ``order`` (cumulants from ``samples``, raw
+    :class:`signfree.samples.Samples`, when given; else from a histogram's
+    counts; else from the smoothed density)."""
+    if model == "cumulant":
+        return _analyse_cumulant(density, mus, order, digits, volume, parity, samples)
     if degree == "per-mu":
         return _analyse_per_mu(density, mus, digits, certify, volume, parity, errors,
                                bootstrap_samples, seed)
@@ -172,6 +178,48 @@ def analyse(density, mus, model="chebyshev", degree=None, digits=12, certify=Fal
     table = ResultTable(rows=rows, model_label=central.label, volume=volume, info=info)
     info["horizon"] = table.horizon()
     return Analysis(density=density, model=central, fit=fit, transform=tr, table=table,
+                    seconds=time.perf_counter() - start)
+
+
+def _analyse_cumulant(density, mus, order, digits, volume, parity, samples):
+    """The truncated cumulant series in closed form: model_err from the next
+    non-zero order, status beyond_radius past the nearest zero of Z of the
+    Chebyshev model (the series' radius of convergence)."""
+    from signfree.compare import _cumulant_source, convergence_radius
+    from signfree.cumulants import CumulantModel, cumulant_rows
+    start = time.perf_counter()
+    if order < 1:
+        raise ValueError(f"--order {order}: expected at least 1")
+    fit = fit_chebyshev(density, parity=parity)
+    mus = engine.as_fractions(mus)
+    kappa, kappa_err, source = _cumulant_source(samples if samples is not None else density,
+                                                density, fit.model, order + 2)
+    cm = CumulantModel(kappa=tuple(kappa), order=order, parity=fit.model.parity,
+                       kappa_err=None if kappa_err is None else tuple(kappa_err))
+    nxt = cm.next_order_model()
+    radius, notes = convergence_radius(fit.model, mus)
+    rows = cumulant_rows(cm, nxt, mus, radius=radius, digits=digits)
+    volume = volume if volume is not None else density.volume
+    info = {
+        "model": cm.label, "degree": None, "order": order, "parity": cm.parity,
+        "cumulants": [mpmath.nstr(k, 12) for k in kappa[:order]],
+        "cumulant_errors": None if kappa_err is None else [mpmath.nstr(e, 3)
+                                                           for e in kappa_err[:order]],
+        "cumulants_from": source,
+        "convergence_radius": None if radius is None else
+        ("inf" if radius == mpmath.inf else float(radius)),
+        "radius_from": f"zeros of Z of {fit.model.label}",
+        "model_err_against": None if nxt is None else nxt.label,
+        "integration": "closed form (cumulant series)", "precision_bits": 0,
+        "precision_digits": digits + 10, "nodes": 0,
+        "statistical_errors": "linear propagation of the cumulant errors"
+        if kappa_err is not None else "none",
+        "notes": list(notes) + ([] if nxt is not None else
+                                ["no higher non-zero cumulant: model_err is empty"]),
+    }
+    table = ResultTable(rows=rows, model_label=cm.label, volume=volume, info=info)
+    info["horizon"] = table.horizon()
+    return Analysis(density=density, model=cm, fit=fit, transform=None, table=table,
                     seconds=time.perf_counter() - start)
 
 

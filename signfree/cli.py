@@ -13,6 +13,8 @@ written.
 import argparse
 import os
 import sys
+
+import numpy as np
 import threading
 import time
 from datetime import datetime, timezone
@@ -31,11 +33,15 @@ def _add_analysis_options(p):
     p.add_argument("--mu", required=True, metavar="SPEC",
                    help="mu values: a comma list (0.1,0.5,1) or start:stop:count")
     p.add_argument("--volume", type=float, help="volume V for delta_f (overrides metadata)")
-    p.add_argument("--kind", choices=("slopes", "log_density", "histogram"),
+    p.add_argument("--kind", choices=("slopes", "log_density", "histogram", "samples"),
                    help="input kind (overrides metadata)")
     p.add_argument("--symmetry", choices=("even", "odd", "none"),
                    help="parity of ln rho (overrides metadata; default: detect)")
-    p.add_argument("--model", choices=("chebyshev", "piecewise"), default="chebyshev")
+    p.add_argument("--model", choices=("chebyshev", "piecewise", "cumulant"), default="chebyshev",
+                   help="smoothing: Chebyshev series of ln rho (default), the raw piecewise-"
+                        "linear reconstruction, or the cumulant expansion to --order")
+    p.add_argument("--order", type=int, default=4, metavar="K",
+                   help="order of the cumulant expansion (default 4)")
     p.add_argument("--degree", type=_degree, metavar="N|per-mu",
                    help="Chebyshev degree (default: chosen from the errors); 'per-mu' picks "
                         "per mu the candidate with the smallest statistical plus model error")
@@ -111,8 +117,8 @@ def run_files(input_path, args, reference=None):
     ValueError on bad input before anything is written."""
     from signfree.analysis import analyse, parse_mu_spec
     from signfree.output import csv_text, file_sha256, json_text, package_versions
-    from signfree.reading import read_density
     from signfree.results import ResultTable
+    from signfree.samples import Samples, density_from_samples, read_any
 
     opt = lambda name, default=None: getattr(args, name, default)
     if args.digits < 1 or args.digits > 1000:
@@ -120,19 +126,35 @@ def run_files(input_path, args, reference=None):
     if args.volume is not None and not args.volume > 0:
         raise ValueError(f"--volume {args.volume}: expected a positive number")
     mus = parse_mu_spec(args.mu)
-    start = time.perf_counter()
-    density = read_density(input_path, kind=args.kind, volume=args.volume,
-                           symmetry=args.symmetry)
     if opt("bootstrap", 200) < 2:
         raise ValueError(f"--bootstrap {opt('bootstrap')}: expected at least 2 resamples")
-    result = analyse(density, mus, model=args.model, degree=args.degree, digits=args.digits,
-                     certify=args.certify, volume=args.volume, errors=opt("errors", "auto"),
-                     bootstrap_samples=opt("bootstrap", 200), seed=opt("seed"))
+    start = time.perf_counter()
+    samples, sample_notes = None, []
+    data = read_any(input_path, kind=args.kind, volume=args.volume, symmetry=args.symmetry)
+    if isinstance(data, Samples):
+        samples = data
+        density, sample_notes = density_from_samples(data)
+    else:
+        density = data
+    result = analyse(density, mus, model=opt("model", "chebyshev"), degree=opt("degree"),
+                     digits=args.digits, certify=opt("certify", False), volume=args.volume,
+                     errors=opt("errors", "auto"), bootstrap_samples=opt("bootstrap", 200),
+                     seed=opt("seed"), order=opt("order", 4), samples=samples)
+    result.table.info["notes"][:0] = list(sample_notes)
+    if samples is not None:
+        from signfree.samples import binned_error
+        err, tau, n_eff = binned_error(samples.q, samples.weights)
+        result.table.info["samples"] = {
+            "count": len(samples.q), "mean_q": float(np.average(samples.q, weights=samples.weights)),
+            "mean_q_err": err, "tau_int": tau, "effective_size": n_eff,
+            "error_method": "blocking (Flyvbjerg & Petersen 1989)"}
     table = result.table
     summary = {
         "input": {
-            "file": str(input_path), "sha256": file_sha256(input_path), "kind": density.kind,
-            "points": density.n_points, "replicas": max(1, len(density.replica_labels)),
+            "file": str(input_path), "sha256": file_sha256(input_path),
+            "kind": "samples" if samples is not None else density.kind,
+            "points": len(samples.q) if samples is not None else density.n_points,
+            "replicas": max(1, len(density.replica_labels)),
             "errors": density.error_source, "metadata": density.metadata,
         },
         "volume": table.volume,

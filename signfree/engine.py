@@ -236,11 +236,21 @@ def chebyshev_matrix(n, prec, degree):
         if m == n and p >= prec and d == degree:
             return T
     xs, _ = gauss_legendre(n, prec)
+    # T_k(cos t) = Re exp(i k t), exp(i t) = x + i sqrt(1 - x^2): with
+    # rectangular complex balls each power can widen the radius by up to
+    # sqrt(2), so the powers are taken from the exact node midpoints
+    # degree/2 + 32 bits above prec and rounded to prec at the end; the
+    # nodes' own radii r enter as k^2 r (|T_k'| <= k^2 on [-1, 1])
+    with ctx.workprec(prec + degree // 2 + 32):
+        steps = [acb(x.mid(), (1 - x.mid() * x.mid()).sqrt()) for x in xs]
+        powers, table = list(steps), []
+        for _ in range(1, degree + 1):
+            table.append([z.real for z in powers])
+            powers = [z * s for z, s in zip(powers, steps)]
     with ctx.workprec(prec):
-        rows = [[arb(1)] * n, list(xs)]
-        for _ in range(2, degree + 1):
-            rows.append([2 * x * t1 - t0 for x, t1, t0 in zip(xs, rows[-1], rows[-2])])
-        T = arb_mat(rows[: degree + 1])
+        rows = [[arb(1)] * n] + [[+v + arb(0, (k + 1) ** 2 * x.rad()) for v, x in zip(row, xs)]
+                                 for k, row in enumerate(table)]
+        T = arb_mat(rows)
     if len(_CHEB) >= 8:
         _CHEB.pop(next(iter(_CHEB)))
     _CHEB[n, prec, degree] = T

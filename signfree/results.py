@@ -23,7 +23,7 @@ from fractions import Fraction
 
 import mpmath
 
-STATUSES = ("ok", "edge_limited", "noise_limited", "unresolved")
+STATUSES = ("ok", "edge_limited", "noise_limited", "unresolved", "beyond_radius")
 EDGE_FRACTION = mpmath.mpf("0.1")
 
 
@@ -238,13 +238,14 @@ class ResultTable:
         """The largest |mu| of the scan up to which every value stays at least
         two standard errors (all error sources added) away from zero and is
         resolved, with the reason it stops: the largest error source at the
-        first row that fails ('noise', 'model', 'edge', 'precision'), or
-        'end of scan'."""
+        first row that fails ('noise', 'model', 'edge', 'precision'; 'radius'
+        past the convergence radius of a cumulant series), or 'end of scan'."""
         rows = sorted(self.rows, key=lambda r: abs(r.mu))
         last = None
         for r in rows:
-            if r.status == "unresolved" or r.magnitude < 2 * r.total_err:
-                reason, stop = r.dominant_error, float(r.mu)
+            if r.status in ("unresolved", "beyond_radius") or r.magnitude < 2 * r.total_err:
+                reason = "radius" if r.status == "beyond_radius" else r.dominant_error
+                stop = float(r.mu)
                 break
             last = r
         else:
@@ -312,6 +313,8 @@ def edge_error(model, log_z0, mu):
 
 def edge_errors(model, log_z0, mus):
     """:func:`edge_error` for many mu (the model is evaluated once)."""
+    if getattr(model, "edge_free", False):
+        return [mpmath.mpf(0)] * len(mus)
     a, b = model.domain
     floor_ = 1.0 / (b - a)
     ends = [(mpmath.exp(mpmath.mpf(float(model.log_density(e))) - log_z0),
@@ -323,5 +326,7 @@ def edge_errors(model, log_z0, mus):
 def density_rises_at_edge(model):
     """True when ln rho does not fall towards an end of the data range, so
     that the range cuts off a part of the density that matters."""
+    if getattr(model, "edge_free", False):
+        return False
     a, b = model.domain
     return float(model.derivative(a)) <= 0 or float(model.derivative(b)) >= 0
