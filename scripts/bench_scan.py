@@ -17,7 +17,6 @@ import subprocess
 import sys
 import tempfile
 import time
-from fractions import Fraction
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent

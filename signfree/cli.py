@@ -11,7 +11,6 @@ Bad input gives one line on stderr and exit status 2, and nothing is
 written.
 """
 import argparse
-import os
 import sys
 
 import numpy as np

@@ -15,7 +15,6 @@ Cumulants come from the raw samples when the input is a time series
 (k-statistics with blocked-jackknife errors), from the counts of a
 histogram, and otherwise from the chosen Chebyshev model's density.
 """
-import argparse
 import sys
 import time
 from dataclasses import dataclass, field
@@ -303,16 +302,3 @@ def cmd_compare(args, out=None):
     print(result.text(), file=out)
     print(f"wrote {folder / 'compare.csv'} and {folder / 'summary.json'}", file=out)
     return 0
-
-
-def main(argv=None):
-    """Stand-alone entry point (``python -m signfree.compare``)."""
-    parser = argparse.ArgumentParser(prog="signfree")
-    sub = parser.add_subparsers(dest="command", required=True)
-    add_compare_parser(sub)
-    args = parser.parse_args(argv)
-    return args.handler(args)
-
-
-if __name__ == "__main__":
-    sys.exit(main())

@@ -56,14 +56,9 @@ _META = re.compile(r"#\s*([A-Za-z0-9_.\-]+)\s*:(.*)$")
 _INT = re.compile(r"[+-]?\d+$")
 
 
-def read_density(path, kind=None, volume=None, symmetry=None):
-    """Read a density file; ``kind``, ``volume`` and ``symmetry`` given here
-    override the file's metadata. Raises :class:`InputError` on bad input."""
-    src = str(path)
-    meta, meta_lines, header, rows = _split(_read_lines(path, src), src)
-    kind = _choice(src, "kind", kind, meta, meta_lines, KINDS)
-    symmetry = _choice(src, "symmetry", symmetry, meta, meta_lines, SYMMETRIES)
-    volume = _volume(src, volume, meta, meta_lines)
+def _header(src, header):
+    """(line number, column names) of a header, checked: present, no empty
+    and no repeated names."""
     if header is None:
         raise InputError(src, "empty file: no header line")
     hno, names = header
@@ -73,6 +68,18 @@ def read_density(path, kind=None, volume=None, symmetry=None):
         if names.index(name) != j - 1:
             raise InputError(src, f"column '{name}' appears twice (first as "
                              f"column {names.index(name) + 1})", hno, j)
+    return hno, names
+
+
+def read_density(path, kind=None, volume=None, symmetry=None):
+    """Read a density file; ``kind``, ``volume`` and ``symmetry`` given here
+    override the file's metadata. Raises :class:`InputError` on bad input."""
+    src = str(path)
+    meta, meta_lines, header, rows = _split(_read_lines(path, src), src)
+    kind = _choice(src, "kind", kind, meta, meta_lines, KINDS)
+    symmetry = _choice(src, "symmetry", symmetry, meta, meta_lines, SYMMETRIES)
+    volume = _volume(src, volume, meta, meta_lines)
+    hno, names = _header(src, header)
     if kind is None:
         kind = next((k for col, k in INFER if col in names), None)
         if kind is None:

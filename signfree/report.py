@@ -1107,17 +1107,3 @@ def cmd_report(args):
     print(f"wrote {folder / 'report.html'}, results.csv, summary.json and "
           f"{len(files) - 3} figure files in {folder}")
     return 0
-
-
-def main(argv=None):
-    """``python -m signfree.report INPUT --mu SPEC ...``, the same as
-    ``signfree report``."""
-    from signfree.cli import _Parser
-    parser = _Parser(prog="signfree")
-    sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
-    add_report_parser(sub)
-    return cmd_report(parser.parse_args(["report", *(sys.argv[1:] if argv is None else argv)]))
-
-
-if __name__ == "__main__":
-    sys.exit(main())

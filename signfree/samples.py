@@ -33,7 +33,8 @@ import numpy as np
 
 from signfree.density import KINDS, Density
 from signfree.errors import InputError
-from signfree.reading import SYMMETRIES, _choice, _field, _read_lines, _split, _volume
+from signfree.reading import (SYMMETRIES, _choice, _field, _header, _read_lines, _split,
+                               _volume)
 
 SAMPLE_COLUMNS = ("q", "weight", "replica")
 MIN_SAMPLES = 4          # k-statistics up to order 4 need four values
@@ -92,15 +93,7 @@ def read_samples(path, volume=None, symmetry=None):
                          "(kind 'samples')", meta_lines["kind"])
     symmetry = _choice(src, "symmetry", symmetry, meta, meta_lines, SYMMETRIES)
     volume = _volume(src, volume, meta, meta_lines)
-    if header is None:
-        raise InputError(src, "empty file: no header line")
-    hno, names = header
-    for j, name in enumerate(names, 1):
-        if not name:
-            raise InputError(src, "empty column name in header", hno, j)
-        if names.index(name) != j - 1:
-            raise InputError(src, f"column '{name}' appears twice (first as "
-                             f"column {names.index(name) + 1})", hno, j)
+    hno, names = _header(src, header)
     if "q" not in names:
         raise InputError(src, "missing required column 'q' for kind 'samples'", hno)
     for name in names:

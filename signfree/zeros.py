@@ -58,7 +58,6 @@ Method
   flagged as a possible artefact of the finite range (the cut-off itself
   makes zeros where the endpoint terms rival Z).
 """
-import argparse
 import math
 import sys
 import time
@@ -1010,16 +1009,3 @@ def cmd_zeros(args, out=None):
     print(result.text(), file=out)
     print(f"wrote {folder / 'zeros.csv'} and {folder / 'summary.json'}", file=out)
     return 0
-
-
-def main(argv=None):
-    """Stand-alone entry point (``python -m signfree.zeros``)."""
-    parser = argparse.ArgumentParser(prog="signfree")
-    sub = parser.add_subparsers(dest="command", required=True)
-    add_zeros_parser(sub)
-    args = parser.parse_args(argv)
-    return args.handler(args)
-
-
-if __name__ == "__main__":
-    sys.exit(main())

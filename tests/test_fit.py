@@ -3,7 +3,6 @@ parity choices, and the slope reconstruction."""
 import numpy as np
 import pytest
 from numpy.polynomial import Chebyshev
-from numpy.polynomial import chebyshev as C
 from scipy import stats
 
 from signfree.chebyshev import chi2_sf, fit_chebyshev, fit_degree
