@@ -179,3 +179,34 @@ def test_run_lists_the_real_sign_changes(tmp_path):
     for mu in (3.0, 3.5):
         exact = math.exp(-mu ** 2 / 2) * (1 + c * (1 - mu ** 2)) / (1 + c)
         assert float(rows[mu]["avg_phase"]) == pytest.approx(exact, rel=1e-6)
+
+
+def test_several_inputs_in_parallel_match_single_runs(tmp_path):
+    # --jobs 2 runs each input in its own process; the numbers must be the
+    # same as a run of that input alone (same engine, same data).
+    a = gaussian_slopes(tmp_path / "a.csv", sigma=2.0, half_range=30.0)
+    b = gaussian_slopes(tmp_path / "b.csv", sigma=3.0, half_range=45.0)
+    res = signfree("run", a, b, "--mu", "0:2:5", "--jobs", "2", "--out", "both", cwd=tmp_path)
+    assert res.returncode == 0, res.stderr
+    alone = signfree("run", b, "--mu", "0:2:5", "--out", "b_alone", cwd=tmp_path)
+    assert alone.returncode == 0, alone.stderr
+    assert read_results(tmp_path / "both" / "b") == read_results(tmp_path / "b_alone")
+    rows = read_results(tmp_path / "both" / "a")
+    exact = math.exp(-2.0 ** 2 * 4 / 2)  # GR 3.896.4 at mu = 2, sigma = 2
+    assert float(rows[-1]["avg_phase"]) == pytest.approx(exact, rel=1e-9)
+
+
+def test_certified_run_and_figures(tmp_path):
+    # --certify: rigorous acb.integral enclosures; the value must still match
+    # Gradshteyn & Ryzhik 3.896.4, and --plots adds the three figures.
+    src = gaussian_slopes(tmp_path / "g.csv", sigma=1.0, half_range=25.0)
+    res = signfree("run", src, "--mu", "0,3", "--certify", "--plots", "--out", "out",
+                   cwd=tmp_path)
+    assert res.returncode == 0, res.stderr
+    summary = json.loads((tmp_path / "out" / "summary.json").read_text())
+    assert summary["integration"] == "acb.integral"
+    row = read_results(tmp_path / "out")[1]
+    assert float(row["avg_phase"]) == pytest.approx(math.exp(-4.5), rel=1e-10)
+    for name in ("fit", "phase", "depth"):
+        assert (tmp_path / "out" / f"fig_{name}.png").stat().st_size > 5000
+        assert (tmp_path / "out" / f"fig_{name}.pdf").read_bytes().startswith(b"%PDF")

@@ -231,3 +231,20 @@ def test_naive_samples_of_a_row_built_by_hand():
     assert row.naive_log10_samples == pytest.approx(10.0, abs=1e-12)
     table = ResultTable(rows=[row], model_label="chebyshev:2")
     assert table.records()[0]["naive_samples"] == "1e10"
+
+
+def test_degree_per_mu_takes_the_smallest_combined_error():
+    # --degree per-mu: for every mu the degree among those tried with the
+    # smallest sqrt(stat^2 + model^2) (the criterion stated in the README);
+    # each row must do at least as well as the automatic degree's row.
+    d = wide(0.02)
+    per_mu = analyse(d, WIDE_MUS[:12], degree="per-mu", digits=8).table
+    auto = analyse(d, WIDE_MUS[:12], digits=8).table
+    tried = per_mu.info["degrees_tried"]
+    assert per_mu.info["degree"] == "per-mu" and len(tried) >= 3
+    combined = lambda r: mpmath.sqrt((r.stat_err or 0) ** 2 + (r.model_err or 0) ** 2)
+    for p, a in zip(per_mu.rows, auto.rows):
+        assert p.degree in tried
+        if a.status != "unresolved":
+            assert combined(p) <= combined(a) * 1.001 + mpmath.mpf(10) ** -30 * a.magnitude
+    assert {r["degree"] for r in per_mu.records()} <= {str(t) for t in tried}
