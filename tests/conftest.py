@@ -1,5 +1,5 @@
-"""Test-wide settings: Gauss-Legendre rules are cached in a folder of the
-test session, not in the user's cache."""
+"""Test-wide settings: Gauss-Legendre rules are cached in a temporary folder
+made for the test run, not in the user's cache."""
 import os
 import tempfile
 
