@@ -22,6 +22,13 @@ from signfree.results import ResultTable, Row, density_rises_at_edge, edge_error
 MODELS = ("chebyshev", "piecewise", "cumulant")
 
 
+def check_digits(digits):
+    """The --digits range every command accepts (1 to 1000)."""
+    if digits < 1 or digits > 1000:
+        raise ValueError(f"--digits {digits}: expected 1 to 1000")
+    return digits
+
+
 def parse_mu_spec(spec):
     """'0.1,0.5,1' (a list) or 'start:stop:count' (count evenly spaced values,
     both ends included) as exact fractions of the decimals written."""

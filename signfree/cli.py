@@ -114,27 +114,21 @@ def _fail(message):
 def run_files(input_path, args, reference=None):
     """Read, analyse and prepare the files of one run; raises InputError or
     ValueError on bad input before anything is written."""
-    from signfree.analysis import analyse, parse_mu_spec
+    from signfree.analysis import analyse, check_digits, parse_mu_spec
     from signfree.output import csv_text, file_sha256, json_text, package_versions
     from signfree.results import ResultTable
-    from signfree.samples import Samples, density_from_samples, read_any
+    from signfree.samples import load
 
     opt = lambda name, default=None: getattr(args, name, default)
-    if args.digits < 1 or args.digits > 1000:
-        raise ValueError(f"--digits {args.digits}: expected 1 to 1000")
+    check_digits(args.digits)
     if args.volume is not None and not args.volume > 0:
         raise ValueError(f"--volume {args.volume}: expected a positive number")
     mus = parse_mu_spec(args.mu)
     if opt("bootstrap", 200) < 2:
         raise ValueError(f"--bootstrap {opt('bootstrap')}: expected at least 2 resamples")
     start = time.perf_counter()
-    samples, sample_notes = None, []
-    data = read_any(input_path, kind=args.kind, volume=args.volume, symmetry=args.symmetry)
-    if isinstance(data, Samples):
-        samples = data
-        density, sample_notes = density_from_samples(data)
-    else:
-        density = data
+    density, samples, sample_notes = load(input_path, kind=args.kind, volume=args.volume,
+                                          symmetry=args.symmetry)
     result = analyse(density, mus, model=opt("model", "chebyshev"), degree=opt("degree"),
                      digits=args.digits, certify=opt("certify", False), volume=args.volume,
                      errors=opt("errors", "auto"), bootstrap_samples=opt("bootstrap", 200),

@@ -256,13 +256,11 @@ def add_compare_parser(subparsers):
 def compare_files(args):
     """Read and compare, and prepare compare.csv and summary.json; raises
     InputError or ValueError on bad input before anything is written."""
-    from signfree.analysis import parse_mu_spec
+    from signfree.analysis import check_digits, parse_mu_spec
     from signfree.output import csv_text, file_sha256, json_text, package_versions
     from signfree.samples import read_any
 
-    digits = getattr(args, "digits", 12)
-    if digits < 1 or digits > 1000:
-        raise ValueError(f"--digits {digits}: expected 1 to 1000")
+    digits = check_digits(getattr(args, "digits", 12))
     max_order = getattr(args, "max_order", 8)
     if max_order < 2 or max_order > 40:
         raise ValueError(f"--max-order {max_order}: expected 2 to 40")

@@ -149,6 +149,17 @@ def read_any(path, **kw):
     return read_density(path, **kw)
 
 
+def load(path, **kw):
+    """(density, samples or None, notes) for any input file: a density as
+    read, or raw samples together with their histogram density
+    (:func:`density_from_samples`)."""
+    data = read_any(path, **kw)
+    if isinstance(data, Samples):
+        density, notes = density_from_samples(data)
+        return density, data, notes
+    return data, None, []
+
+
 def _kish(weights, n):
     """Kish's effective sample size (sum w)^2 / sum w^2 (Kish, Survey
     Sampling, 1965); n without weights."""

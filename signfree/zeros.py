@@ -954,21 +954,16 @@ def add_zeros_parser(subparsers):
 def zeros_files(args):
     """Read, fit, search and prepare zeros.csv and summary.json; raises
     InputError or ValueError on bad input before anything is written."""
+    from signfree.analysis import check_digits
     from signfree.chebyshev import fit_chebyshev
     from signfree.output import csv_text, file_sha256, json_text, package_versions
-    from signfree.samples import Samples, density_from_samples, read_any
+    from signfree.samples import load
 
-    digits = getattr(args, "digits", 12)
-    if digits < 1 or digits > 1000:
-        raise ValueError(f"--digits {digits}: expected 1 to 1000")
+    digits = check_digits(getattr(args, "digits", 12))
     box = parse_box(args.box)
-    data = read_any(args.input, kind=getattr(args, "kind", None),
-                    symmetry=getattr(args, "symmetry", None))
-    sample_notes = []
-    if isinstance(data, Samples):
-        density, sample_notes = density_from_samples(data)
-    else:
-        density = data
+    density, samples, sample_notes = load(args.input, kind=getattr(args, "kind", None),
+                                          symmetry=getattr(args, "symmetry", None))
+    data = samples if samples is not None else density
     fit = fit_chebyshev(density, degree=getattr(args, "degree", None),
                         parity=getattr(args, "symmetry", None))
     result = find_zeros(fit.model, box, digits=digits)
