@@ -21,11 +21,8 @@ from pathlib import Path
 import numpy as np
 
 ROOT = Path(__file__).resolve().parent.parent
-V, S2, G = 1000, 1.0, 0.02
-
-
-def lnrho(q):
-    return -q * q / (2 * V * S2) - G * q ** 4 / V ** 3
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from bench_scan import HALF_RANGE, S2, V, lnrho  # noqa: E402  (the same density)
 
 
 def main():
@@ -35,7 +32,7 @@ def main():
     ap.add_argument("--depth", type=float, default=100.0)
     a = ap.parse_args()
     mu_max = math.sqrt(2 * math.log(10) * a.depth / (V * S2))
-    half_range = 23 * math.sqrt(V * S2)
+    half_range = HALF_RANGE
     rng = np.random.default_rng(2024)
     q = np.linspace(-half_range, half_range, 241)
     with tempfile.TemporaryDirectory() as tmp:

@@ -23,6 +23,7 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 V, S2, G = 1000, 1.0, 0.02
+HALF_RANGE = 23 * math.sqrt(V * S2)   # edge terms near e^-270 relative, below the scan
 
 
 def lnrho(q):
@@ -47,7 +48,7 @@ def main():
     # mu_max from the Gaussian estimate D = mu^2 V s2 / (2 ln 10), a little
     # under the requested depth because the quartic narrows the density
     mu_max = math.sqrt(2 * math.log(10) * a.depth / (V * S2))
-    half_range = 23 * math.sqrt(V * S2)   # edge terms near e^-270 relative, below the scan
+    half_range = HALF_RANGE
     with tempfile.TemporaryDirectory() as tmp:
         src = Path(tmp) / "bench.csv"
         write_input(src, half_range)

@@ -28,14 +28,21 @@ class _Parser(argparse.ArgumentParser):
         sys.exit(2)
 
 
+def add_input_options(p, symmetry=True):
+    """--kind (and --symmetry): how to read an input file, shared by every
+    command that reads one."""
+    p.add_argument("--kind", choices=("slopes", "log_density", "histogram", "samples"),
+                   help="input kind (overrides metadata)")
+    if symmetry:
+        p.add_argument("--symmetry", choices=("even", "odd", "none"),
+                       help="parity of ln rho (overrides metadata; default: detect)")
+
+
 def _add_analysis_options(p):
     p.add_argument("--mu", required=True, metavar="SPEC",
                    help="mu values: a comma list (0.1,0.5,1) or start:stop:count")
     p.add_argument("--volume", type=float, help="volume V for delta_f (overrides metadata)")
-    p.add_argument("--kind", choices=("slopes", "log_density", "histogram", "samples"),
-                   help="input kind (overrides metadata)")
-    p.add_argument("--symmetry", choices=("even", "odd", "none"),
-                   help="parity of ln rho (overrides metadata; default: detect)")
+    add_input_options(p)
     p.add_argument("--model", choices=("chebyshev", "piecewise", "cumulant"), default="chebyshev",
                    help="smoothing: Chebyshev series of ln rho (default), the raw piecewise-"
                         "linear reconstruction, or the cumulant expansion to --order")

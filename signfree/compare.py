@@ -247,8 +247,8 @@ def add_compare_parser(subparsers):
                    help="significant digits wanted (default 12)")
     p.add_argument("--max-order", type=int, default=8, dest="max_order",
                    help="highest cumulant order (default 8)")
-    p.add_argument("--kind", choices=("slopes", "log_density", "histogram", "samples"),
-                   help="input kind (overrides metadata)")
+    from signfree.cli import add_input_options
+    add_input_options(p, symmetry=False)
     p.set_defaults(handler=cmd_compare)
     return p
 

@@ -943,10 +943,8 @@ def add_zeros_parser(subparsers):
     p.add_argument("--digits", type=int, default=12,
                    help="significant digits wanted for each zero (default 12)")
     p.add_argument("--degree", type=int, help="Chebyshev degree (default: chosen from the errors)")
-    p.add_argument("--kind", choices=("slopes", "log_density", "histogram", "samples"),
-                   help="input kind (overrides metadata)")
-    p.add_argument("--symmetry", choices=("even", "odd", "none"),
-                   help="parity of ln rho (overrides metadata; default: detect)")
+    from signfree.cli import add_input_options
+    add_input_options(p)
     p.set_defaults(handler=cmd_zeros)
     return p
 
