@@ -72,8 +72,8 @@ def main():
     import mpmath
     import numpy as np
 
-    from signfree.chebyshev import fit_degree
-    from signfree.reading import read_density
+    from signfree.models.chebyshev import fit_degree
+    from signfree.io.reading import read_density
     with tempfile.TemporaryDirectory() as tmp:
         src = Path(tmp) / "bench.csv"
         write_input(src, half_range)

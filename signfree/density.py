@@ -1,7 +1,7 @@
 """The validated density object every later stage works from, and the
 piecewise-linear reconstruction of ln rho from it.
 
-A ``Density`` is made only by :mod:`signfree.reading` (or directly by a
+A ``Density`` is made only by :mod:`signfree.io.reading` (or directly by a
 notebook user); nothing after reading re-checks it.
 """
 from dataclasses import dataclass, field

@@ -10,8 +10,9 @@ import mpmath
 import numpy as np
 import pytest
 
-from signfree.analysis import parse_mu_spec
-from signfree.compare import COLUMNS, add_compare_parser, cmd_compare, compare
+from signfree.analysis.settings import parse_mu_spec
+from signfree.analysis.compare import COLUMNS, compare
+from signfree.cli.compare import add_parser as add_compare_parser, cmd_compare
 from signfree.density import Density
 
 

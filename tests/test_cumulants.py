@@ -11,15 +11,17 @@ from numpy.polynomial import chebyshev as C
 from scipy import stats
 
 from signfree import engine
-from signfree.chebyshev import ChebyshevModel
-from signfree.cumulants import (CumulantModel, cumulant_rows, histogram_cumulant_errors,
-                                histogram_cumulants, model_cumulants, moments_to_cumulants,
-                                sample_cumulants)
+from signfree.models.chebyshev import ChebyshevModel
+from signfree.analysis.cumulant import cumulant_rows
+from signfree.engine.moments import model_cumulants
+from signfree.models.cumulant import (CumulantModel, histogram_cumulant_errors,
+                                      histogram_cumulants, moments_to_cumulants,
+                                      sample_cumulants)
 from signfree.density import Density
 from signfree.errors import InputError
-from signfree.piecewise import PiecewiseModel
-from signfree.samples import (Samples, binned_error, blocking_analysis, read_any,
-                              read_samples, samples_to_histogram)
+from signfree.models.piecewise import PiecewiseModel
+from signfree.io.samples import (Samples, binned_error, blocking_analysis, read_any,
+                                 read_samples, samples_to_histogram)
 from signfree.scenarios import rotor_log_density
 
 # ------------------------------------------------------------ fixtures
@@ -204,8 +206,8 @@ def test_gaussian_model_has_only_kappa2_and_the_order2_series_is_exact():
         assert abs(kappa[n - 1]) < mpmath.mpf(10) ** -28 * sigma ** n
     cm = CumulantModel(kappa=tuple(kappa), order=2, parity="even")
     mus = [Fraction(1, 2), Fraction(3), Fraction(10)]
-    tr = cm.transform(mus, digits=15)
-    ref = engine.chebyshev_transform([model], mus, digits=15)
+    tr = engine.transform([cm], mus, digits=15)
+    ref = engine.transform([model], mus, digits=15)
     assert tr.method == "cumulant-series" and tr.nodes == 0 and all(tr.resolved)
     with mpmath.workdps(60):
         for k, mu in enumerate(mus):
@@ -371,7 +373,7 @@ def test_samples_to_histogram_bins():
 # samples' worth of information, so the histogram for the smoothings is
 # scaled to that size (tau_int = 4.5 for AR(1) with phi = 0.8, as above)
 def test_histogram_of_correlated_samples_is_scaled_to_the_effective_size():
-    from signfree.samples import density_from_samples
+    from signfree.io.samples import density_from_samples
     x = np.rint(3 * ar1(2 ** 15, 0.8, seed=21))
     d, notes = density_from_samples(Samples(q=x))
     assert d.value.sum() == pytest.approx(len(x) / 9, rel=0.3)

@@ -10,8 +10,8 @@ import pytest
 from numpy.polynomial import chebyshev as C
 
 from signfree import engine
-from signfree.chebyshev import ChebyshevModel
-from signfree.piecewise import PiecewiseModel
+from signfree.models.chebyshev import ChebyshevModel
+from signfree.models.piecewise import PiecewiseModel
 
 
 def gaussian_model(sigma, half_range):
@@ -34,7 +34,7 @@ def test_gaussian_fourier_integral_at_deep_cancellation(depth):
     # terms below 1e-340, far under the 12 digits asked for at D = 200.
     sigma = 1.0
     mu = Fraction(math.sqrt(2 * depth * math.log(10)))
-    tr = engine.chebyshev_transform([gaussian_model(sigma, 40.0)], [Fraction(1, 2), mu],
+    tr = engine.transform([gaussian_model(sigma, 40.0)], [Fraction(1, 2), mu],
                                     digits=12)
     with mpmath.workdps(depth + 40):
         exact = [mpmath.exp(-(mpmath.mpf(m.numerator) / m.denominator) ** 2 * sigma ** 2 / 2)
@@ -57,7 +57,7 @@ def test_double_precision_fails_where_the_engine_does_not():
     q = np.linspace(-L, L, 20001)
     naive = np.trapezoid(np.exp(-q ** 2 / 2) * np.cos(mu * q), q) / np.sqrt(2 * np.pi)
     assert abs(naive / 1e-50 - 1) > 1e3  # wrong by far more than the value
-    tr = engine.chebyshev_transform([gaussian_model(sigma, L)], [mu], digits=12)
+    tr = engine.transform([gaussian_model(sigma, L)], [mu], digits=12)
     assert abs(value(tr, 0).real / mpmath.mpf("1e-50") - 1) < 1e-9
 
 
@@ -89,7 +89,7 @@ def test_non_polynomial_density_against_mpmath_quad():
     coef = C.chebfit(x, f(0.5 * (b - a) * x), 24)
     model = ChebyshevModel(coef=coef, domain=(a, b))
     mus = [Fraction(1, 3), Fraction(3), Fraction(6)]
-    tr = engine.chebyshev_transform([model], mus, digits=14)
+    tr = engine.transform([model], mus, digits=14)
     for k, mu in enumerate(mus):
         ref = _quad_reference(model, mu, 30)
         got = value(tr, k)
@@ -103,7 +103,7 @@ def test_certified_route_encloses_the_reference():
     # the Gaussian answer of Gradshteyn & Ryzhik 3.896.4 must lie in the ball.
     model = gaussian_model(1.0, 30.0)
     mu = Fraction(8)
-    tr = engine.chebyshev_transform([model], [mu], digits=12, certify=True)
+    tr = engine.transform([model], [mu], digits=12, certify=True)
     assert tr.method == "acb.integral"
     z = tr.values[0][0]
     with mpmath.workdps(60):
@@ -118,8 +118,8 @@ def test_uniform_grid_matches_the_direct_route():
     # evaluation point by point (two ways of computing the same sum).
     model = gaussian_model(2.0, 20.0)
     grid = [Fraction(k, 10) for k in range(20)]
-    fast = engine.chebyshev_transform([model], grid, digits=12)
-    slow = engine.chebyshev_transform([model], grid[::3] + [grid[-1]], digits=12)
+    fast = engine.transform([model], grid, digits=12)
+    slow = engine.transform([model], grid[::3] + [grid[-1]], digits=12)
     for k, mu in enumerate(grid[::3] + [grid[-1]]):
         j = grid.index(mu)
         assert abs(value(fast, j) - value(slow, k)) <= 1e-12 * abs(value(slow, k))
@@ -131,7 +131,7 @@ def test_piecewise_exact_segments_against_mpmath_quad():
     vals = np.array([-4.5, -1.2, -0.1, 0.0, -2.1, -6.0])
     model = PiecewiseModel(knots=knots, values=vals)
     mus = [Fraction(0), Fraction(7, 4), Fraction(5)]
-    tr = engine.segment_transform([model], mus, digits=15)
+    tr = engine.transform([model], mus, digits=15)
     with mpmath.workdps(40):
         def rho(q):
             i = max(0, min(len(knots) - 2, int(np.searchsorted(knots, float(q)) - 1)))

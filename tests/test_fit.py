@@ -5,10 +5,10 @@ import pytest
 from numpy.polynomial import Chebyshev
 from scipy import stats
 
-from signfree.chebyshev import chi2_sf, fit_chebyshev, fit_degree
+from signfree.models.chebyshev import chi2_sf, fit_chebyshev, fit_degree
 from signfree.density import Density, slope_knots
 from signfree.errors import InputError
-from signfree.piecewise import PiecewiseModel
+from signfree.models.piecewise import PiecewiseModel
 
 
 def log_density(q, y, err=None, **kw):

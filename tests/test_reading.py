@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from signfree.errors import InputError
-from signfree.reading import read_density
+from signfree.io.reading import read_density
 
 
 def write(tmp_path, lines, name="data.csv"):

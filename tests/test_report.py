@@ -20,8 +20,11 @@ import pytest
 
 matplotlib.use("Agg")
 
-from signfree import cli, report  # noqa: E402
-from signfree.results import ResultTable, Row, error_string  # noqa: E402
+from signfree.cli import options as cli_options, run as cli_run  # noqa: E402
+from signfree.cli import report as cli_report  # noqa: E402
+from signfree.report import figures, routes, style  # noqa: E402
+from signfree.report import page as report_page  # noqa: E402
+from signfree.analysis.results import ResultTable, Row, error_string  # noqa: E402
 from test_cli import gaussian_slopes  # noqa: E402
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -43,7 +46,7 @@ def gauss(tmp_path_factory):
     rows past mu ~ 5 whose noise flips sign."""
     src = gaussian_slopes(tmp_path_factory.mktemp("g") / "g.csv", sigma=1.0, half_range=5.0,
                           width=0.25, noise=0.003)
-    analysis, files = cli.run_files(src, options("0:8:33"))
+    analysis, files = cli_run.run_files(src, options("0:8:33"))
     return analysis, files
 
 
@@ -60,7 +63,7 @@ def test_phase_figure_plots_the_tables_log10_values(gauss):
     analysis, _ = gauss
     table = analysis.table
     reference = exact_gauss([r.mu for r in table.rows])
-    fig = report.make_figures(analysis, reference=reference)["phase"]
+    fig = figures.make_figures(analysis, reference=reference)["phase"]
     ax = fig.axes[0]
     lines = lines_by_gid(ax)
     x, y = (np.asarray(v, dtype=float) for v in lines["value"].get_data())
@@ -93,7 +96,7 @@ def test_phase_figure_plots_the_tables_log10_values(gauss):
 
 
 def sign_spans(ax):
-    green = matplotlib.colors.to_rgb(report.OKABE_ITO["green"])
+    green = matplotlib.colors.to_rgb(style.OKABE_ITO["green"])
     return [p for p in ax.patches if tuple(p.get_facecolor()[:3]) == green]
 
 
@@ -106,8 +109,8 @@ def test_values_far_below_the_smallest_double_are_plotted():
                 quad_err=mpmath.mpf(10) ** (-200 * k - 20), edge_err=mpmath.mpf(0))
             for k, m in enumerate(mus)]
     table = ResultTable(rows=rows, model_label="test", info={})
-    with matplotlib.rc_context(report.STYLE):
-        phase, depth = report.phase_figure(table), report.depth_figure(table)
+    with matplotlib.rc_context(style.STYLE):
+        phase, depth = figures.phase_figure(table), figures.depth_figure(table)
     y = lines_by_gid(phase.axes[0])["value"].get_ydata()
     assert np.allclose(y, [-200.0 * k for k in range(6)])
     spans = sign_spans(phase.axes[0])
@@ -123,7 +126,7 @@ def test_values_far_below_the_smallest_double_are_plotted():
 def test_depth_figure_matches_cancel_orders_and_marks_the_horizon(gauss):
     analysis, _ = gauss
     table = analysis.table
-    lines = lines_by_gid(report.make_figures(analysis)["depth"].axes[0])
+    lines = lines_by_gid(figures.make_figures(analysis)["depth"].axes[0])
     depth = lines["depth"].get_ydata()
     records = table.records()
     for d, rec in zip(depth, records):
@@ -143,8 +146,8 @@ def test_depth_figure_matches_cancel_orders_and_marks_the_horizon(gauss):
 @pytest.mark.parametrize("name, mu", [("rotors_slopes.csv", "0:2:5"),
                                       ("rotors_log_density.csv", "0:2:5")])
 def test_fit_figure_shows_every_data_point_and_its_residual(name, mu):
-    analysis, _ = cli.run_files(DEMO / name, options(mu))
-    fig = report.make_figures(analysis)["fit"]
+    analysis, _ = cli_run.run_files(DEMO / name, options(mu))
+    fig = figures.make_figures(analysis)["fit"]
     n = analysis.density.n_points
     top, resid_ax = fig.axes[0], fig.axes[-1]
     data = lines_by_gid(top)["data"]
@@ -165,7 +168,7 @@ def test_fit_figure_shows_every_data_point_and_its_residual(name, mu):
     assert float(np.sum(resid ** 2)) * scale == pytest.approx(info["chi2"], rel=1e-6)
     assert resid_ax.get_xlabel() == r"$q$"
     assert top.get_shared_x_axes().joined(top, resid_ax)
-    assert fig.get_figwidth() == pytest.approx(report.COLUMN_WIDTH)
+    assert fig.get_figwidth() == pytest.approx(style.COLUMN_WIDTH)
 
 
 class Comparison:
@@ -183,12 +186,12 @@ class Comparison:
 def test_compare_and_zeros_figures(gauss, tmp_path):
     analysis, _ = gauss
     src = Path(analysis.density.source)
-    other, _ = cli.run_files(src, options("0:8:33", model="piecewise"))
+    other, _ = cli_run.run_files(src, options("0:8:33", model="piecewise"))
     comparison = Comparison([analysis, other])
     zeros = SimpleNamespace(box=(0.0, 3.0, -1.0, 1.0), radius=mpmath.mpf(1.25), count=3, zeros=[
         SimpleNamespace(re=mpmath.mpf(1.5), im=mpmath.mpf(0.5), err=mpmath.mpf(0.01)),
         SimpleNamespace(re=1.5, im=-0.5, err=0.01, multiplicity=2, converged=False)])
-    figs = report.make_figures(analysis, comparison=comparison, zeros=zeros)
+    figs = figures.make_figures(analysis, comparison=comparison, zeros=zeros)
     assert list(figs) == ["fit", "phase", "depth", "compare", "zeros"]
     lines = lines_by_gid(figs["compare"].axes[0])
     assert {"model:" + analysis.table.info["model"], "model:piecewise"} <= set(lines)
@@ -196,7 +199,7 @@ def test_compare_and_zeros_figures(gauss, tmp_path):
     ok = [k for k, rec in enumerate(analysis.table.records()) if rec["avg_phase"]]
     assert np.allclose(np.asarray(chosen.get_ydata())[ok],
                        [-float(analysis.table.records()[k]["cancel_orders"]) for k in ok])
-    label, devs = report.comparison_deviations(comparison)
+    label, devs = routes.comparison_deviations(comparison)
     assert label == analysis.table.info["model"] and devs["piecewise"][0]
     # both models rest on the same slopes: they agree within the summed total errors
     assert max(abs(d) for d in devs["piecewise"][1]) < 1
@@ -211,7 +214,7 @@ def test_compare_and_zeros_figures(gauss, tmp_path):
     zl = lines_by_gid(zax)
     assert np.allclose(np.hypot(*zl["radius"].get_data()), 1.25)
     assert [t.get_text() for t in zax.texts] == ["×2"]
-    page = report.html_report(analysis, {}, {}, comparison=comparison, zeros=zeros)
+    page = report_page.html_report(analysis, {}, {}, comparison=comparison, zeros=zeros)
     check_self_contained(page, images=False)
     assert 'id="zeros-table"' in page and 'id="comparison-table"' in page
     assert "2 zero(s) refined, 3 by the argument principle" in page
@@ -219,15 +222,15 @@ def test_compare_and_zeros_figures(gauss, tmp_path):
 
 def test_write_figures_gives_png_and_pdf_bytes_for_write_files(gauss, tmp_path):
     analysis, _ = gauss
-    figs = report.make_figures(analysis)
-    files = report.write_figures({"phase": figs["phase"]}, tmp_path / "out")
+    figs = figures.make_figures(analysis)
+    files = figures.write_figures({"phase": figs["phase"]}, tmp_path / "out")
     assert sorted(files) == ["fig_phase.pdf", "fig_phase.png"]
     png, pdf = files["fig_phase.png"], files["fig_phase.pdf"]
     assert png[:8] == b"\x89PNG\r\n\x1a\n" and pdf[:5] == b"%PDF-"
     width = int.from_bytes(png[16:20], "big")
-    assert width == pytest.approx(report.COLUMN_WIDTH * report.PNG_DPI, abs=2)
+    assert width == pytest.approx(style.COLUMN_WIDTH * style.PNG_DPI, abs=2)
     assert (tmp_path / "out" / "fig_phase.png").read_bytes() == png
-    assert report.write_figures({"phase": figs["phase"]})["fig_phase.pdf"] == pdf  # reproducible
+    assert figures.write_figures({"phase": figs["phase"]})["fig_phase.pdf"] == pdf  # reproducible
 
 
 def check_self_contained(page, images=True):
@@ -247,8 +250,8 @@ def test_html_report_is_self_contained_and_escaped(gauss):
     summary = json.loads(files["summary.json"])
     analysis.table.info["notes"].append("<script>alert('x')</script> & more")
     try:
-        figs = report.make_figures(analysis)
-        page = report.html_report(analysis, figs, summary)
+        figs = figures.make_figures(analysis)
+        page = report_page.html_report(analysis, figs, summary)
     finally:
         analysis.table.info["notes"].pop()
     check_self_contained(page)
@@ -263,14 +266,14 @@ def test_html_report_is_self_contained_and_escaped(gauss):
 
 
 def report_parser():
-    parser = cli._Parser(prog="signfree")
-    sub = parser.add_subparsers(dest="command", required=True, parser_class=cli._Parser)
-    report.add_report_parser(sub)
+    parser = cli_options.Parser(prog="signfree")
+    sub = parser.add_subparsers(dest="command", required=True, parser_class=cli_options.Parser)
+    cli_report.add_parser(sub)
     return parser
 
 
 def run_report(*argv):
-    return report.cmd_report(report_parser().parse_args(["report", *map(str, argv)]))
+    return cli_report.cmd_report(report_parser().parse_args(["report", *map(str, argv)]))
 
 
 def chromium_dom(page_path, tmp_path):
@@ -341,8 +344,8 @@ def test_report_bad_input_one_line_exit_2_nothing_written(tmp_path, capsys, monk
 
 def test_figures_files_for_run_plots(gauss, monkeypatch):
     analysis, _ = gauss
-    monkeypatch.setattr(report, "_pdf", lambda fig: b"%PDF-")  # PDF is checked above
-    files = report.figures_files(analysis)
+    monkeypatch.setattr(figures, "_pdf", lambda fig: b"%PDF-")  # PDF is checked above
+    files = figures.figures_files(analysis)
     assert sorted(files) == sorted(f"fig_{n}.{e}" for n in ("fit", "phase", "depth")
                                    for e in ("png", "pdf"))
     assert all(isinstance(v, bytes) and v for v in files.values())

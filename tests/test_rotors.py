@@ -28,7 +28,7 @@ import mpmath
 import numpy as np
 import pytest
 
-from signfree.analysis import analyse
+from signfree.analysis.analyse import analyse
 from signfree.density import Density
 from signfree.scenarios import rotor_log_density
 

@@ -15,10 +15,11 @@ import mpmath
 import numpy as np
 import pytest
 
-from signfree.analysis import analyse, parse_mu_spec
+from signfree.analysis.analyse import analyse
+from signfree.analysis.settings import parse_mu_spec
 from signfree.density import Density
-from signfree.reading import read_density
-from signfree.results import ResultTable, Row
+from signfree.io.reading import read_density
+from signfree.analysis.results import ResultTable, Row
 
 S = 1.0
 WIDTH = 0.5

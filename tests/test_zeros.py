@@ -11,10 +11,12 @@ import numpy as np
 import pytest
 from numpy.polynomial import chebyshev as C
 
-from signfree.chebyshev import ChebyshevModel
+from signfree.models.chebyshev import ChebyshevModel
 from signfree.scenarios import rotor_log_density, rotor_phase_factor
-from signfree.zeros import (Zero, add_zeros_parser, cmd_zeros, count_zeros, find_zeros,
-                            partners, phase_factor, unpaired, with_partners)
+from signfree.analysis.zeros import (Zero, count_zeros, find_zeros, partners, unpaired,
+                                     with_partners)
+from signfree.cli.zeros import add_parser as add_zeros_parser, cmd_zeros
+from signfree.engine.complex_mu import phase_factor
 
 A = 0.5          # ln rho = ln cosh(a q) - q^2 / 2
 L = 8.5          # data range [-L, L]: rho(L) / rho(0) ~ e^-32

@@ -4,7 +4,7 @@ autocorrelation.
 
 Format
 ------
-The same CSV rules as :mod:`signfree.reading`: blank lines skipped, ``#``
+The same CSV rules as :mod:`signfree.io.reading`: blank lines skipped, ``#``
 lines are comments, ``# key: value`` lines before the header carry metadata
 (``kind: samples``, ``volume``, ``symmetry``). The header names the columns:
 
@@ -33,7 +33,7 @@ import numpy as np
 
 from signfree.density import KINDS, Density
 from signfree.errors import InputError
-from signfree.reading import (SYMMETRIES, _choice, _field, _header, _read_lines, _split,
+from signfree.io.reading import (SYMMETRIES, _choice, _field, _header, _read_lines, _split,
                                _volume)
 
 SAMPLE_COLUMNS = ("q", "weight", "replica")
@@ -130,9 +130,9 @@ def read_any(path, **kw):
     """Read a file as raw samples (:func:`read_samples`) when its metadata
     says ``kind: samples``, when ``kind='samples'`` is passed, or when no kind
     is stated and every header column is one of q, weight, replica; otherwise
-    as a density (:func:`signfree.reading.read_density`, which gets ``kw``).
+    as a density (:func:`signfree.io.reading.read_density`, which gets ``kw``).
     Returns a :class:`Samples` or a :class:`signfree.density.Density`."""
-    from signfree.reading import read_density
+    from signfree.io.reading import read_density
     src = str(path)
     kind = kw.get("kind")
     if kind is None:
@@ -204,7 +204,7 @@ def samples_to_histogram(samples, bins=None, effective_size=None):
     from :func:`binned_error` for correlated samples. With replica labels the
     per-replica counts are kept as ``replicas``, as the reader does.
     ``metadata['binning']`` records 'lattice' or 'continuous' (for the
-    Sheppard corrections of :func:`signfree.cumulants.histogram_cumulants`).
+    Sheppard corrections of :func:`signfree.models.cumulant.histogram_cumulants`).
     """
     q = np.asarray(samples.q, dtype=float)
     w = samples.weights

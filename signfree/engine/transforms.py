@@ -24,20 +24,17 @@ Piecewise-linear models are integrated exactly, segment by segment.
 """
 import bisect
 import math
-import os
-import tempfile
 from dataclasses import dataclass
-from fractions import Fraction
-from pathlib import Path
 
 import mpmath
 import numpy as np
-from flint import acb, acb_mat, arb, arb_mat, ctx, fmpq
+from flint import acb, acb_mat, arb, arb_mat, ctx
 
-GUARD_DIGITS = 10
-MAX_PREC = 1 << 15          # bits (about 9900 digits)
-MAX_NODES = 8000
-LOG2_10 = math.log2(10.0)
+from signfree.engine.balls import (MAX_NODES, MAX_PREC, abs_mid, arb_of as _arb, as_fractions,
+                                   difference, exp_i as _exp_i, precision_bits,
+                                   relative_radius as _relative_radius, uniform_step, upper)
+from signfree.engine.certification import certified as _certified
+from signfree.engine.rules import chebyshev_matrix, gauss_legendre, on_ladder as _on_ladder
 
 
 @dataclass
@@ -67,196 +64,6 @@ class Transform:
     gradient: tuple = None
 
 
-def to_mpf(x):
-    """An arb midpoint as an mpmath mpf (exact; any exponent)."""
-    man, exp = x.mid().man_exp()
-    return mpmath.mpf((int(man), int(exp)))
-
-
-def upper(x):
-    """An upper bound of |x| for an arb or acb ball, as an mpmath mpf."""
-    if isinstance(x, acb):
-        return upper(x.real.abs_upper()) + upper(x.imag.abs_upper())
-    man, exp = x.abs_upper().man_exp()
-    return mpmath.mpf((int(man), int(exp)))
-
-
-def difference(a, b):
-    """a - b for arb or acb balls, exactly (Arb rounds every operation to the
-    context precision, 53 bits outside a ``workprec`` block)."""
-    with ctx.workprec(MAX_PREC):
-        return a - b
-
-
-def abs_mid(z):
-    """|mid z| of an acb ball as an mpf."""
-    return mpmath.hypot(to_mpf(z.real), to_mpf(z.imag))
-
-
-def as_fractions(mus):
-    """mu values as exact fractions. Floats that are evenly spaced to within
-    a few units in the last place (as from numpy.linspace) are snapped onto the
-    exact grid, which lets the engine factorise exp(i mu q); the snap moves a
-    mu by at most 4 ulp."""
-    out = [m if isinstance(m, Fraction) else Fraction(float(m)) for m in mus]
-    if len(out) >= 3 and uniform_step(out) is None:
-        h = (out[-1] - out[0]) / (len(out) - 1)
-        grid = [out[0] + k * h for k in range(len(out))]
-        scale = max(abs(float(m)) for m in out) or 1.0
-        if h != 0 and all(abs(float(g - m)) <= 4 * np.spacing(scale) for g, m in zip(grid, out)):
-            return grid
-    return out
-
-
-def uniform_step(mus):
-    """The step h if mus are evenly spaced (exactly, as fractions), else None."""
-    if len(mus) < 3:
-        return None
-    h = mus[1] - mus[0]
-    if h == 0 or any(mus[i + 1] - mus[i] != h for i in range(len(mus) - 1)):
-        return None
-    return h
-
-
-def _on_ladder(n):
-    """The smallest node count >= n on the ladder 32 * 1.1^k (rounded up),
-    so that node sets (and their cache) are shared between calls."""
-    m = 32
-    while m < n:
-        m = -(-11 * m // 10)
-    return m
-
-
-def precision_bits(depth, digits, magnitude=1.0, nodes=64):
-    """Working precision for a cancellation depth (decimal orders), wanted
-    digits, the size of the exponent p and the number of summed terms."""
-    bits = (max(depth, 0.0) + digits + GUARD_DIGITS) * LOG2_10
-    bits += math.log2(abs(magnitude) + 2.0) + math.log2(nodes + 1.0) + 16
-    return int(min(MAX_PREC, math.ceil(bits / 64.0) * 64))
-
-
-_NODES = {}
-
-
-def _cache_dir():
-    """Where computed Gauss-Legendre rules are kept between runs:
-    $SIGNFREE_CACHE, else ~/.cache/signfree; SIGNFREE_CACHE=off keeps none.
-    The files hold exact balls (integer mantissas and exponents), so a rule
-    read back is the rule computed."""
-    where = os.environ.get("SIGNFREE_CACHE")
-    if where == "off":
-        return None
-    return Path(where) if where else Path.home() / ".cache" / "signfree"
-
-
-def _ball_ints(x):
-    m, e = x.mid().man_exp()
-    rm, re = x.rad().man_exp()
-    return f"{int(m):x} {int(e)} {int(rm):x} {int(re)}"
-
-
-def _ball(fields):
-    m, e, rm, re = int(fields[0], 16), int(fields[1]), int(fields[2], 16), int(fields[3])
-    return arb(arb(m) * arb(2) ** e, arb(rm) * arb(2) ** re)
-
-
-def _read_rule(n, prec):
-    folder = _cache_dir()
-    if folder is None:
-        return None
-    best = None
-    for path in folder.glob(f"gauss-legendre-{n}-*.txt"):
-        try:
-            p = int(path.stem.rsplit("-", 1)[1])
-        except ValueError:
-            continue
-        if p >= prec and (best is None or p < best[0]):
-            best = (p, path)
-    if best is None:
-        return None
-    try:
-        lines = best[1].read_text().split("\n")
-        with ctx.workprec(best[0] + 16):
-            half = [(_ball(f[:4]), _ball(f[4:])) for f in (ln.split() for ln in lines if ln)]
-    except (OSError, ValueError, IndexError):
-        return None
-    return half if len(half) == (n + 1) // 2 else None
-
-
-def _write_rule(n, prec, half):
-    folder = _cache_dir()
-    if folder is None:
-        return
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-        text = "".join(f"{_ball_ints(x)} {_ball_ints(w)}\n" for x, w in half)
-        fd, tmp = tempfile.mkstemp(dir=folder, prefix=".gl-")
-        with os.fdopen(fd, "w") as f:
-            f.write(text)
-        os.replace(tmp, folder / f"gauss-legendre-{n}-{prec}.txt")
-    except OSError:
-        pass  # a cache that cannot be written only costs time
-
-
-def gauss_legendre(n, prec):
-    """Nodes and weights of the n-point Gauss-Legendre rule on [-1, 1] to at
-    least ``prec`` bits (Arb's arb_hypgeom_legendre_p_ui_root). A rule once
-    computed at some precision serves every lower one, in this process and,
-    through :func:`_cache_dir`, in later runs."""
-    if (n, prec) in _NODES:
-        return _NODES[n, prec]
-    for (m, p), (xs, ws) in list(_NODES.items()):
-        if m == n and p > prec:
-            # rounded to the working precision: Arb's matrix products lose
-            # accuracy on entries carried at far more bits than they work at
-            with ctx.workprec(prec + 16):
-                _NODES[n, prec] = (tuple(+x for x in xs), tuple(+w for w in ws))
-            return _NODES[n, prec]
-    half = _read_rule(n, prec)
-    if half is None:
-        with ctx.workprec(prec + 16):
-            half = [arb.legendre_p_root(n, k, weight=True) for k in range((n + 1) // 2)]
-        _write_rule(n, prec, half)
-    with ctx.workprec(prec + 16):  # negation rounds too: keep it inside
-        xs = [x for x, _ in half] + [-x for x, _ in reversed(half[: n // 2])]
-        ws = [w for _, w in half] + [w for _, w in reversed(half[: n // 2])]
-    if len(_NODES) >= 24:
-        _NODES.pop(next(iter(_NODES)))
-    _NODES[n, prec] = (tuple(xs), tuple(ws))
-    return _NODES[n, prec]
-
-
-_CHEB = {}
-
-
-def chebyshev_matrix(n, prec, degree):
-    """T_k(x_j) for k <= degree at the n Gauss-Legendre nodes, as arb_mat;
-    one computed at a higher precision or degree serves."""
-    for (m, p, d), T in _CHEB.items():
-        if m == n and p >= prec and d == degree:
-            return T
-    xs, _ = gauss_legendre(n, prec)
-    # T_k(cos t) = Re exp(i k t), exp(i t) = x + i sqrt(1 - x^2): with
-    # rectangular complex balls each power can widen the radius by up to
-    # sqrt(2), so the powers are taken from the exact node midpoints
-    # degree/2 + 32 bits above prec and rounded to prec at the end; the
-    # nodes' own radii r enter as k^2 r (|T_k'| <= k^2 on [-1, 1])
-    with ctx.workprec(prec + degree // 2 + 32):
-        steps = [acb(x.mid(), (1 - x.mid() * x.mid()).sqrt()) for x in xs]
-        powers, table = list(steps), []
-        for _ in range(1, degree + 1):
-            table.append([z.real for z in powers])
-            powers = [z * s for z, s in zip(powers, steps)]
-    with ctx.workprec(prec):
-        rows = [[arb(1)] * n] + [[+v + arb(0, (k + 1) ** 2 * x.rad()) for v, x in zip(row, xs)]
-                                 for k, row in enumerate(table)]
-        T = arb_mat(rows)
-    if len(_CHEB) >= 8:
-        _CHEB.pop(next(iter(_CHEB)))
-    _CHEB[n, prec, degree] = T
-    return T
-
-
 def _model_profile(coef, domain):
     """Double-precision facts about exp(p) that set the starting precision and
     node count: variance of q and max |p| over the domain."""
@@ -271,16 +78,6 @@ def _model_profile(coef, domain):
     var = (w * (q - mean) ** 2).sum()
     return var, float(np.abs(p).max())
 
-
-def _arb(x):
-    """An exact rational (Fraction) or float as an arb at the current precision."""
-    if isinstance(x, Fraction):
-        return arb(fmpq(x.numerator, x.denominator))
-    return arb(x)
-
-
-def _exp_i(theta):
-    return acb(0, theta).exp()
 
 
 def _is_even(coef_rows, domain):
@@ -412,12 +209,6 @@ def _powers(start, step, count):
     for _ in range(count - 1):
         out.append(out[-1] * step)
     return out
-
-
-def _relative_radius(z):
-    mag = abs_mid(z)
-    rad = upper(acb(z.real.rad(), z.imag.rad()))
-    return mpmath.inf if mag == 0 else rad / mag
 
 
 def _chunks(mus):
@@ -583,93 +374,3 @@ def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
     return Transform(values=values, quad_err=quad, log_z0=log_z0, resolved=resolved,
                      prec=prec, nodes=n, method=method, mus=mus, gradient=grad)
 
-
-def _clenshaw(coef, x):
-    """sum_k c_k T_k(x) for an acb ball x (Clenshaw's recurrence)."""
-    b1 = b2 = acb(0)
-    for c in reversed(coef[1:]):
-        b1, b2 = 2 * x * b1 - b2 + c, b1
-    return x * b1 - b2 + coef[0]
-
-
-def _certified(models, mus, digits, estimate, prec):
-    """Rigorous enclosures by acb.integral (Petras' adaptive Gauss-Legendre
-    with error bounds from the Bernstein ellipse, in Arb) for every model and
-    mu; ``estimate`` (the batch values) sets the absolute tolerance."""
-    values, quad = [], []
-    ok = [True] * len(mus)
-    a, b = models[0].domain
-    with ctx.workprec(prec):
-        half, mid = (arb(b) - arb(a)) / 2, (arb(a) + arb(b)) / 2
-        for model in models:
-            coef = [arb(float(c)) for c in model.coef]
-            shift = arb(float(np.max(model.log_density(np.linspace(a, b, 513)))))
-
-            def integral(mu, tol):
-                m = _arb(mu)
-                f = lambda x, _: (_clenshaw(coef, x) - shift + acb(0, m) * (mid + half * x)).exp()
-                return acb.integral(f, -1, 1, abs_tol=tol, rel_tol=arb(2) ** (-prec + 8),
-                                    eval_limit=10 ** 7)
-
-            z0 = integral(0, arb(2) ** (-prec))
-            row_v, row_q = [], []
-            for k, mu in enumerate(mus):
-                mag = abs_mid(estimate[0][k])
-                tol = arb(mpmath.nstr(mag * mpmath.mpf(10) ** (-(digits + 3)), 5)) \
-                    if mag > 0 else arb(2) ** (-prec)
-                v = integral(mu, tol) / z0
-                row_v.append(v)
-                row_q.append(upper(acb(v.real.rad(), v.imag.rad())))
-                if _relative_radius(v) > mpmath.mpf(10) ** (-digits):
-                    ok[k] = False
-            values.append(row_v)
-            quad.append(row_q)
-    return values, quad, ok
-
-
-def segment_transform(models, mus, digits=12):
-    """Z(mu)/Z(0) for piecewise-linear ln rho, exact per segment:
-    Int_{t_j}^{t_j + h_j} exp(v_j + s_j (q - t_j) + i mu q) dq
-      = h_j exp(v_j + i mu t_j) expm1(z_j) / z_j,  z_j = (s_j + i mu) h_j.
-    Only rounding error remains; the precision is raised until the balls
-    carry ``digits``."""
-    mus = as_fractions(mus)
-    depth = 0.0
-    prec = precision_bits(depth, digits, 1.0, 64)
-    tol = mpmath.mpf(10) ** (-(digits + 2))
-    while True:
-        values, log_z0 = [], []
-        with ctx.workprec(prec):
-            for model in models:
-                t, v = model.knots, model.values
-                shift = float(np.max(v))
-                seg = []
-                for j in range(len(t) - 1):
-                    h = arb(float(t[j + 1])) - arb(float(t[j]))
-                    s = (arb(float(v[j + 1])) - arb(float(v[j]))) / h
-                    seg.append((arb(float(t[j])), h, s, (arb(float(v[j])) - shift).exp()))
-
-                def z_of(mu):
-                    m = _arb(mu)
-                    total = acb(0)
-                    for t0, h, s, e in seg:
-                        z = acb(s, m) * h
-                        factor = h if (s == 0 and mu == 0) else z.expm1() / z * h
-                        total += e * _exp_i(m * t0) * factor
-                    return total
-
-                z0 = z_of(Fraction(0))
-                log_z0.append(shift + float(z0.real.log().mid()))
-                values.append([z_of(mu) / z0 for mu in mus])
-        rel = [max(_relative_radius(row[k]) for row in values) for k in range(len(mus))]
-        worst = max(rel)
-        if worst <= tol or prec >= MAX_PREC:
-            break
-        if worst == mpmath.inf or worst >= 1:
-            prec = min(MAX_PREC, 2 * prec)
-        else:
-            prec = min(MAX_PREC, int(prec + float(mpmath.log(worst / tol, 2)) + 32))
-    quad = [[upper(acb(z.real.rad(), z.imag.rad())) for z in row] for row in values]
-    return Transform(values=values, quad_err=quad, log_z0=log_z0,
-                     resolved=[r <= tol for r in rel], prec=prec, nodes=0,
-                     method="exact-segments", mus=mus)

@@ -23,6 +23,7 @@ class PiecewiseModel:
     values: np.ndarray
     parity: str = "none"
 
+    integrand = "piecewise-linear"
     label = "piecewise"
     degree = None
     chi2 = float("nan")
@@ -71,17 +72,3 @@ class PiecewiseModel:
         slopes = np.diff(self.values) / np.diff(self.knots)
         i = np.clip(np.searchsorted(self.knots, q, side="right") - 1, 0, len(slopes) - 1)
         return slopes[i]
-
-    def transform(self, mus, digits=12, certify=False):
-        return self.transform_batch([self], mus, digits=digits, certify=certify)
-
-    @staticmethod
-    def transform_batch(models, mus, digits=12, certify=False, check_rows=None, gradient=()):
-        """Exact segment sums; ``certify`` changes nothing, the result is
-        already an enclosure of the model's integral; every row is computed
-        to the same precision (``check_rows`` is accepted for a uniform
-        interface); no gradient rows."""
-        if gradient:
-            raise ValueError("the piecewise model has no coefficients to differentiate")
-        from signfree import engine
-        return engine.segment_transform(models, mus, digits=digits)

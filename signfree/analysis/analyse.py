@@ -5,67 +5,24 @@
     print(result.table.text())
 
 Each step is also available on its own (``fit_chebyshev``,
-``PiecewiseModel.from_density``, ``model.transform``).
+``PiecewiseModel.from_density``, ``signfree.engine.transform``). What the
+analysis is asked to do is one :class:`~signfree.analysis.settings.Settings`
+value; keyword arguments change single fields of it.
 """
 import time
-from dataclasses import dataclass
-from fractions import Fraction
-
 import mpmath
 import numpy as np
 
-from signfree import engine, uncertainty
-from signfree.chebyshev import fit_chebyshev
-from signfree.piecewise import PiecewiseModel
-from signfree.results import ResultTable, Row, density_rises_at_edge, edge_errors
+from signfree import engine
+from signfree.analysis import uncertainty
+from signfree.analysis.cumulant import analyse_cumulant
+from signfree.analysis.results import (Analysis, ResultTable, Row, density_rises_at_edge,
+                                       edge_errors)
+from signfree.analysis.settings import MODELS, check_digits, parse_mu_spec, settings_of
+from signfree.models.chebyshev import fit_chebyshev
+from signfree.models.piecewise import PiecewiseModel
 
-MODELS = ("chebyshev", "piecewise", "cumulant")
-
-
-def check_digits(digits):
-    """The --digits range every command accepts (1 to 1000)."""
-    if digits < 1 or digits > 1000:
-        raise ValueError(f"--digits {digits}: expected 1 to 1000")
-    return digits
-
-
-def parse_mu_spec(spec):
-    """'0.1,0.5,1' (a list) or 'start:stop:count' (count evenly spaced values,
-    both ends included) as exact fractions of the decimals written."""
-    spec = spec.strip()
-    try:
-        if ":" in spec:
-            parts = spec.split(":")
-            if len(parts) != 3:
-                raise ValueError
-            start, stop = Fraction(parts[0].strip()), Fraction(parts[1].strip())
-            count = int(parts[2].strip())
-            if count < 1 or (count == 1 and start != stop):
-                raise ValueError
-            if count == 1:
-                return [start]
-            h = (stop - start) / (count - 1)
-            return [start + k * h for k in range(count)]
-        values = [Fraction(s.strip()) for s in spec.split(",")]
-        if not values:
-            raise ValueError
-        return values
-    except (ValueError, ZeroDivisionError):
-        raise ValueError(f"--mu {spec!r}: expected a comma list such as 0.1,0.5,1 "
-                         "or start:stop:count such as 0:2:41") from None
-
-
-@dataclass
-class Analysis:
-    """Everything one run produced: the density, the chosen model and how it
-    was chosen, the engine's transform and the results table."""
-
-    density: object
-    model: object
-    fit: object
-    transform: object
-    table: ResultTable
-    seconds: float
+__all__ = ["Analysis", "analyse", "smoothing_models", "parse_mu_spec", "check_digits", "MODELS"]
 
 
 def smoothing_models(density, model="chebyshev", degree=None, parity=None):
@@ -79,24 +36,32 @@ def smoothing_models(density, model="chebyshev", degree=None, parity=None):
     raise ValueError(f"unknown model {model!r}; expected one of {', '.join(MODELS)}")
 
 
-def analyse(density, mus, model="chebyshev", degree=None, digits=12, certify=False,
-            volume=None, parity=None, errors="auto", bootstrap_samples=200, seed=None,
-            order=4, samples=None):
+def analyse(density, mus, settings=None, samples=None, **changes):
     """Smooth the density, compute Z(mu)/Z(0) for every mu and return an
     :class:`Analysis` whose table carries the error budget per mu.
 
-    ``degree`` None chooses it from the errors, an integer fixes it, and
-    'per-mu' picks for each mu the candidate minimising the combined
-    statistical and model error. ``errors`` is one of
-    :data:`signfree.uncertainty.METHODS`. ``model='cumulant'`` sums the
-    cumulant expansion to ``order`` (cumulants from ``samples``, raw
-    :class:`signfree.samples.Samples`, when given; else from a histogram's
-    counts; else from the smoothed density)."""
-    if model == "cumulant":
-        return _analyse_cumulant(density, mus, order, digits, volume, parity, samples)
-    if degree == "per-mu":
-        return _analyse_per_mu(density, mus, digits, certify, volume, parity, errors,
-                               bootstrap_samples, seed)
+    ``settings`` (:class:`~signfree.analysis.settings.Settings`, default the
+    defaults) with ``changes`` applied field by field, e.g.
+    ``analyse(d, mus, digits=20, errors="bootstrap")``. ``degree`` None
+    chooses it from the errors, an integer fixes it, and 'per-mu' picks for
+    each mu the candidate minimising the combined statistical and model
+    error. ``model='cumulant'`` sums the cumulant expansion to ``order``
+    (cumulants from ``samples``, raw :class:`signfree.io.samples.Samples`,
+    when given; else from a histogram's counts; else from the smoothed
+    density)."""
+    s = settings_of(settings, **changes)
+    if s.model == "cumulant":
+        return analyse_cumulant(density, mus, s, samples)
+    if s.degree == "per-mu":
+        return _analyse_per_mu(density, mus, s)
+    return _analyse_fixed(density, mus, s)
+
+
+def _analyse_fixed(density, mus, s):
+    """The Chebyshev or piecewise path at one degree (given or chosen)."""
+    model, degree, digits, certify = s.model, s.degree, s.digits, s.certify
+    volume, parity, errors = s.volume, s.parity, s.errors
+    bootstrap_samples, seed = s.bootstrap_samples, s.seed
     start = time.perf_counter()
     central, neighbours, fit = smoothing_models(density, model, degree, parity)
     method = uncertainty.choose_method(density, errors, central.label)
@@ -114,8 +79,8 @@ def analyse(density, mus, model="chebyshev", degree=None, digits=12, certify=Fal
         ks, factor = uncertainty.coefficient_covariance(density, central)
         gradient = ks
     extra = resamples + [m for group in neighbour_resamples for m in group]
-    tr = type(central).transform_batch(batch + extra, mus, digits=digits, certify=certify,
-                                       check_rows=len(batch), gradient=gradient)
+    tr = engine.transform(batch + extra, mus, digits=digits, certify=certify,
+                          check_rows=len(batch), gradient=gradient)
     n_res = len(resamples)
     rep_rows = tr.values[len(batch):len(batch) + n_res]
     if resamples:
@@ -188,48 +153,6 @@ def analyse(density, mus, model="chebyshev", degree=None, digits=12, certify=Fal
                     seconds=time.perf_counter() - start)
 
 
-def _analyse_cumulant(density, mus, order, digits, volume, parity, samples):
-    """The truncated cumulant series in closed form: model_err from the next
-    non-zero order, status beyond_radius past the nearest zero of Z of the
-    Chebyshev model (the series' radius of convergence)."""
-    from signfree.compare import _cumulant_source, convergence_radius
-    from signfree.cumulants import CumulantModel, cumulant_rows
-    start = time.perf_counter()
-    if order < 1:
-        raise ValueError(f"--order {order}: expected at least 1")
-    fit = fit_chebyshev(density, parity=parity)
-    mus = engine.as_fractions(mus)
-    kappa, kappa_err, source = _cumulant_source(samples if samples is not None else density,
-                                                density, fit.model, order + 2)
-    cm = CumulantModel(kappa=tuple(kappa), order=order, parity=fit.model.parity,
-                       kappa_err=None if kappa_err is None else tuple(kappa_err))
-    nxt = cm.next_order_model()
-    radius, notes = convergence_radius(fit.model, mus)
-    rows = cumulant_rows(cm, nxt, mus, radius=radius, digits=digits)
-    volume = volume if volume is not None else density.volume
-    info = {
-        "model": cm.label, "degree": None, "order": order, "parity": cm.parity,
-        "cumulants": [mpmath.nstr(k, 12) for k in kappa[:order]],
-        "cumulant_errors": None if kappa_err is None else [mpmath.nstr(e, 3)
-                                                           for e in kappa_err[:order]],
-        "cumulants_from": source,
-        "convergence_radius": None if radius is None else
-        ("inf" if radius == mpmath.inf else float(radius)),
-        "radius_from": f"zeros of Z of {fit.model.label}",
-        "model_err_against": None if nxt is None else nxt.label,
-        "integration": "closed form (cumulant series)", "precision_bits": 0,
-        "precision_digits": digits + 10, "nodes": 0,
-        "statistical_errors": "linear propagation of the cumulant errors"
-        if kappa_err is not None else "none",
-        "notes": list(notes) + ([] if nxt is not None else
-                                ["no higher non-zero cumulant: model_err is empty"]),
-    }
-    table = ResultTable(rows=rows, model_label=cm.label, volume=volume, info=info)
-    info["horizon"] = table.horizon()
-    return Analysis(density=density, model=cm, fit=fit, transform=None, table=table,
-                    seconds=time.perf_counter() - start)
-
-
 def _mpc(z):
     return mpmath.mpc(engine.to_mpf(z.real), engine.to_mpf(z.imag))
 
@@ -244,19 +167,20 @@ def _describe_errors(method, density, samples):
     }[method]
 
 
-def _analyse_per_mu(density, mus, digits, certify, volume, parity, errors, samples, seed):
+def _analyse_per_mu(density, mus, s):
     """Per mu, the candidate degree with the smallest combined statistical
     and model error (sqrt(stat^2 + model^2)), among the automatic choice,
     two candidates below and four above it."""
-    from signfree.chebyshev import candidate_degrees
+    from signfree.models.chebyshev import candidate_degrees
     start = time.perf_counter()
-    fit = fit_chebyshev(density, parity=parity)
+    fit = fit_chebyshev(density, parity=s.parity)
     n_fit = len(density.log_density_points()[1]) if density.kind != "slopes" else density.n_points
     degrees = candidate_degrees(density.kind, n_fit, fit.model.parity)
     i = degrees.index(fit.model.degree)
     window = degrees[max(0, i - 2): i + 5]
-    runs = {d: analyse(density, mus, "chebyshev", d, digits, certify, volume,
-                       fit.model.parity, errors, samples, seed) for d in window}
+    runs = {d: _analyse_fixed(density, mus, s.with_(model="chebyshev", degree=d,
+                                                    parity=fit.model.parity))
+            for d in window}
     base = runs[fit.model.degree]
     rows, used = [], []
     for k in range(len(base.table.rows)):

@@ -29,8 +29,8 @@ import mpmath
 import numpy as np
 
 from signfree import engine
-from signfree.chebyshev import _basis, _design, _fit_data, fit_degree
-from signfree.piecewise import PiecewiseModel
+from signfree.models.chebyshev import _basis, _design, _fit_data, fit_degree
+from signfree.models.piecewise import PiecewiseModel
 
 METHODS = ("auto", "jackknife", "bootstrap", "covariance", "none")
 

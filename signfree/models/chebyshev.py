@@ -51,6 +51,8 @@ class ChebyshevModel:
     chi2: float = float("nan")
     dof: int = 0
 
+    integrand = "chebyshev-exponent"
+
     @property
     def degree(self):
         return len(self.coef) - 1
@@ -69,17 +71,6 @@ class ChebyshevModel:
     def derivative(self, q):
         a, b = self.domain
         return C.chebval(self.window(q), C.chebder(self.coef)) * 2.0 / (b - a)
-
-    def transform(self, mus, digits=12, certify=False):
-        return self.transform_batch([self], mus, digits=digits, certify=certify)
-
-    @staticmethod
-    def transform_batch(models, mus, digits=12, certify=False, check_rows=None, gradient=()):
-        """Z(mu)/Z(0) for every model (rows) and mu (columns); see
-        :func:`signfree.engine.chebyshev_transform`."""
-        from signfree import engine
-        return engine.chebyshev_transform(models, mus, digits=digits, certify=certify,
-                                          check_rows=check_rows, gradient=gradient)
 
 
 @dataclass(frozen=True)

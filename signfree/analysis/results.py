@@ -330,3 +330,16 @@ def density_rises_at_edge(model):
         return False
     a, b = model.domain
     return float(model.derivative(a)) <= 0 or float(model.derivative(b)) >= 0
+
+
+@dataclass
+class Analysis:
+    """Everything one run produced: the density, the chosen model and how it
+    was chosen, the engine's transform and the results table."""
+
+    density: object
+    model: object
+    fit: object
+    transform: object
+    table: ResultTable
+    seconds: float
