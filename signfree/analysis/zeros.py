@@ -50,7 +50,7 @@ import numpy as np
 
 from signfree import engine
 from signfree.analysis.contour import Counter, _cplx, _roots_from_power_sums
-from signfree.engine.complex_mu import ContourError, Evaluator, _fmt_complex, _frac, phase_factor
+from signfree.engine.complex_mu import ContourError, Evaluator, _fmt_complex, _frac
 
 MAX_DEPTH = 40             # quartering levels
 SPLIT_OFFSETS = (Fraction(17, 1000), Fraction(-29, 1000), Fraction(43, 1000),

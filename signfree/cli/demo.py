@@ -4,7 +4,8 @@ import argparse
 from pathlib import Path
 
 from signfree.cli.options import fail, read_reference
-from signfree.cli.run import print_report, run_files
+from signfree.cli.run import run_files
+from signfree.report.outputs import print_report
 
 HELP = "run the pipeline on the shipped demo data"
 DEMO_DIR = Path(__file__).resolve().parent.parent.parent / "data" / "demo"

@@ -4,12 +4,10 @@ processes with --jobs)."""
 import sys
 import threading
 import time
-from datetime import datetime, timezone
 from pathlib import Path
 
-import numpy as np
-
 from signfree.cli.options import add_analysis_options, fail, settings_from_args
+from signfree.report.outputs import analyse_file, report_text
 
 HELP = "analyse density files"
 
@@ -31,92 +29,17 @@ def add_parser(sub):
 
 
 def run_files(input_path, args, reference=None):
-    """Read, analyse and prepare the files of one run; raises InputError or
-    ValueError on bad input before anything is written."""
-    from signfree.analysis.analyse import analyse
-    from signfree.analysis.results import ResultTable
-    from signfree.analysis.settings import parse_mu_spec
-    from signfree.io.samples import load
-    from signfree.io.writing import csv_text, file_sha256, json_text, package_versions
-
+    """Read, analyse and prepare the files of one run from parsed options;
+    raises InputError or ValueError on bad input before anything is written."""
     settings = settings_from_args(args)
-    mus = parse_mu_spec(args.mu)
-    start = time.perf_counter()
-    density, samples, sample_notes = load(input_path, kind=args.kind, volume=args.volume,
-                                          symmetry=args.symmetry)
-    result = analyse(density, mus, settings, samples=samples)
-    result.table.info["notes"][:0] = list(sample_notes)
-    if samples is not None:
-        from signfree.io.samples import binned_error
-        err, tau, n_eff = binned_error(samples.q, samples.weights)
-        result.table.info["samples"] = {
-            "count": len(samples.q), "mean_q": float(np.average(samples.q, weights=samples.weights)),
-            "mean_q_err": err, "tau_int": tau, "effective_size": n_eff,
-            "error_method": "blocking (Flyvbjerg & Petersen 1989)"}
-    table = result.table
-    summary = {
-        "input": {
-            "file": str(input_path), "sha256": file_sha256(input_path),
-            "kind": "samples" if samples is not None else density.kind,
-            "points": len(samples.q) if samples is not None else density.n_points,
-            "replicas": max(1, len(density.replica_labels)),
-            "errors": density.error_source, "metadata": density.metadata,
-        },
-        "volume": table.volume,
-        "mu": {"spec": args.mu, "count": len(mus)},
-        "digits_wanted": args.digits,
-        **table.info,
-        "statuses": table.status_counts(),
-        "sign_changes": table.sign_changes(),
-        "versions": package_versions(),
-        "run_seconds": round(time.perf_counter() - start, 3),
-        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-    }
-    files = {"results.csv": csv_text(ResultTable.COLUMNS, table.records()),
-             "summary.json": json_text(summary)}
-    return result, files
-
-
-def print_report(result, folder, reference=None, out=sys.stdout):
-    table = result.table
-    info = table.info
-    fit = ""
-    if info.get("chi2_per_dof") is not None:
-        fit = f", chi2/dof = {info['chi2_per_dof']:.3g} ({info['degree_criterion']})"
-    print(f"{result.density.source}: {result.density.kind}, {result.density.n_points} points; "
-          f"model {info['model']} parity {info['parity']}{fit}", file=out)
-    print(f"integration: {info['integration']}, {info['precision_digits']} digits working "
-          f"precision, {info['nodes']} nodes, {result.seconds:.2f} s", file=out)
-    for note in info["notes"]:
-        print(f"note: {note}", file=out)
-    print(table.text(reference), file=out)
-    counts = ", ".join(f"{v} {k}" for k, v in table.status_counts().items() if v)
-    print(f"statuses: {counts}; statistical errors: {info['statistical_errors']}", file=out)
-    print(horizon_line(info["horizon"]), file=out)
-    if folder is not None:
-        print(f"wrote {folder / 'results.csv'} and {folder / 'summary.json'}", file=out)
-
-
-def horizon_line(h):
-    """The headline practitioners quote: where the signal is lost, and what
-    direct reweighting would cost there."""
-    if h["mu"] is None:
-        return (f"horizon: no mu of the scan is resolved two standard errors away from zero "
-                f"(limited by {h['reason']} at mu = {h['first_lost_mu']:g})")
-    text = (f"horizon: signal to mu = {h['mu']:g} ({h['cancel_orders']:.1f} orders cancelled)")
-    text += (", end of scan" if h["first_lost_mu"] is None else
-             f"; lost at mu = {h['first_lost_mu']:g} ({h['reason']})")
-    if h.get("naive_samples_log10") is not None:
-        text += (f"; direct reweighting would need ~1e{h['naive_samples_log10']:.0f} "
-                 "phase-quenched samples for the same accuracy there")
-    return text
+    return analyse_file(input_path, args.mu, settings, kind=args.kind, volume=args.volume,
+                        symmetry=args.symmetry)
 
 
 def _analyse_one(job):
     """Worker for one input (also in a child process): (path, report text,
     files) or (path, None, error message); only plain text crosses the
     process boundary."""
-    import io
     from signfree.errors import InputError
     path, args = job
     try:
@@ -126,9 +49,7 @@ def _analyse_one(job):
     if getattr(args, "plots", False):
         from signfree.report.figures import figures_files
         files.update(figures_files(result))
-    text = io.StringIO()
-    print_report(result, None, out=text)
-    return path, text.getvalue(), files
+    return path, report_text(result), files
 
 
 class Progress:
