@@ -55,15 +55,17 @@ class Density:
 
     def log_density_points(self):
         """(q, ln rho, error) for the kinds measured as ln rho: log_density as
-        given; histogram as ln(count / width) with the Poisson error
-        1/sqrt(count), empty bins left out (ln 0 has no finite value)."""
+        given; histogram as ln((count + 1/2) / width) with the Poisson error
+        1/sqrt(count), empty bins left out (ln 0 has no finite value). The
+        half count removes the 1/(2 count) bias of the logarithm of a Poisson
+        count (E ln(n + 1/2) = ln lambda + O(lambda^-2); common practice)."""
         if self.kind == "log_density":
             return self.q, self.value, self.error
         if self.kind == "histogram":
             keep = self.value > 0
             width = self.width[keep] if self.width is not None else 1.0
             counts = self.value[keep]
-            return self.q[keep], np.log(counts / width), 1.0 / np.sqrt(counts)
+            return self.q[keep], np.log((counts + 0.5) / width), 1.0 / np.sqrt(counts)
         raise ValueError(f"kind {self.kind!r} is not measured as ln rho")
 
 
@@ -95,3 +97,31 @@ def slope_knots(q, width, slope):
     slopes = np.asarray(slopes, dtype=float)
     values = np.concatenate([[0.0], np.cumsum(slopes * np.diff(knots))])
     return knots, values, slopes
+
+
+POOL_DOF = 40      # degrees of freedom a pooled replica variance aims for
+
+
+def pooled_errors(error, n_replicas):
+    """(errors, degrees of freedom): the standard errors of replica means
+    with each point's variance pooled over a window of neighbouring points.
+
+    A variance from the scatter of R replicas has only R - 1 degrees of
+    freedom; used as fit weights, such noisy variances make the weighted
+    fit noisier than its nominal covariance says and correlate the weights
+    with the data. Where the noise varies smoothly along q, the mean of the
+    variances over a window of 2 w + 1 neighbours (w chosen so that the
+    window holds about POOL_DOF degrees of freedom; shrunk at the ends) is
+    an estimate with (2 w + 1)(R - 1) degrees of freedom (pooled variance;
+    common practice)."""
+    var = np.asarray(error, dtype=float) ** 2
+    n = len(var)
+    dof_each = max(n_replicas - 1, 1)
+    w = min(max(0, int(np.ceil((POOL_DOF / dof_each - 1) / 2))), (n - 1) // 2)
+    if w == 0:
+        return np.sqrt(var), dof_each
+    csum = np.concatenate([[0.0], np.cumsum(var)])
+    lo = np.clip(np.arange(n) - w, 0, n)
+    hi = np.clip(np.arange(n) + w + 1, 0, n)
+    pooled = (csum[hi] - csum[lo]) / (hi - lo)
+    return np.sqrt(pooled), int(dof_each * (2 * w + 1))

@@ -9,15 +9,15 @@ Each step is also available on its own (``fit_chebyshev``,
 analysis is asked to do is one :class:`~signfree.analysis.settings.Settings`
 value; keyword arguments change single fields of it.
 """
+import dataclasses
 import time
 import mpmath
 import numpy as np
 
 from signfree import engine
-from signfree.analysis import uncertainty
+from signfree.analysis import budget, uncertainty
 from signfree.analysis.cumulant import analyse_cumulant
-from signfree.analysis.results import (Analysis, ResultTable, Row, density_rises_at_edge,
-                                       edge_errors)
+from signfree.analysis.results import Analysis, ResultTable, Row, density_rises_at_edge
 from signfree.analysis.settings import MODELS, check_digits, parse_mu_spec, settings_of
 from signfree.models.chebyshev import fit_chebyshev
 from signfree.models.piecewise import PiecewiseModel
@@ -59,61 +59,74 @@ def analyse(density, mus, settings=None, samples=None, **changes):
 
 def _analyse_fixed(density, mus, s):
     """The Chebyshev or piecewise path at one degree (given or chosen)."""
-    model, degree, digits, certify = s.model, s.degree, s.digits, s.certify
-    volume, parity, errors = s.volume, s.parity, s.errors
-    bootstrap_samples, seed = s.bootstrap_samples, s.seed
     start = time.perf_counter()
-    central, neighbours, fit = smoothing_models(density, model, degree, parity)
-    method = uncertainty.choose_method(density, errors, central.label)
+    central, neighbours, fit = smoothing_models(density, s.model, s.degree, s.parity)
+    method = uncertainty.choose_method(density, s.errors, central.label)
+    seed = s.seed
     batch = [central] + neighbours
-    resamples, neighbour_resamples, gradient = [], [], ()
+    correction = fit.correction if fit is not None else None
+    resamples, neighbour_resamples = [], []
     if method in ("jackknife", "bootstrap"):
         if method == "bootstrap" and seed is None:
             seed = int(np.random.SeedSequence().entropy % (1 << 32))
-        values = uncertainty.resampled_values(density, method, bootstrap_samples, seed)
-        resamples = uncertainty.resampled_models(density, central, values)
+        values = uncertainty.resampled_values(density, method, s.bootstrap_samples, seed,
+                                              fit.sigma if fit is not None else None)
+        resamples = uncertainty.resampled_models(density, central, values, correction)
         if method == "jackknife":
-            neighbour_resamples = [uncertainty.resampled_models(density, m, values)
+            neighbour_resamples = [uncertainty.resampled_models(density, m, values, correction)
                                    for m in neighbours]
-    elif method == "covariance":
-        ks, factor = uncertainty.coefficient_covariance(density, central)
+    gradient = ()
+    if method == "covariance":
+        ks, factor = uncertainty.coefficient_covariance(
+            density, central, sigma=fit.sigma if fit is not None else None, correction=correction)
         gradient = ks
     extra = resamples + [m for group in neighbour_resamples for m in group]
-    tr = engine.transform(batch + extra, mus, digits=digits, certify=certify,
+    tr = engine.transform(batch + extra, mus, digits=s.digits, certify=s.certify,
                           check_rows=len(batch), gradient=gradient)
+    K = len(tr.mus)
     n_res = len(resamples)
     rep_rows = tr.values[len(batch):len(batch) + n_res]
     if resamples:
         stat = uncertainty.spread_relative(method, tr.values[0], rep_rows)
-    elif gradient:
+    elif method == "covariance":
         stat = uncertainty.propagate_covariance(tr.values[0], tr.gradient, ks, factor)
     else:
-        stat = [None] * len(tr.mus)
+        stat = [None] * K
+    calibrate = uncertainty.coverage_factor(method, len(density.replica_labels),
+                                            fit.sigma_dof if fit is not None else None)
+    stat = [None if e is None else e * calibrate for e in stat]
     # per neighbour: the change of the value, and (jackknife) its spread
     diffs, diff_noise = [], []
     for i in range(1, len(batch)):
-        diffs.append([engine.difference(tr.values[0][k], tr.values[i][k])
-                      for k in range(len(tr.mus))])
+        diffs.append([engine.difference(tr.values[0][k], tr.values[i][k]) for k in range(K)])
         if neighbour_resamples:
-            start = len(batch) + n_res * i
-            rows_i = [[engine.difference(a, b) for a, b in zip(rep_rows[j], tr.values[start + j])]
+            first = len(batch) + n_res * i
+            rows_i = [[engine.difference(a, b) for a, b in zip(rep_rows[j], tr.values[first + j])]
                       for j in range(n_res)]
             diff_noise.append(uncertainty.spread_relative(method, diffs[-1], rows_i))
+    spurious = mpmath.mpf(fit.spurious) if fit is not None else mpmath.mpf(0)
+    fit_ok = fit is None or fit.consistent or fit.noise_estimated
     rows = []
-    edges = edge_errors(central, tr.log_z0[0], tr.mus)
-    with mpmath.workdps(digits + 10):  # the values keep every digit asked for
+    with mpmath.workdps(s.digits + 10):  # the values keep every digit asked for
+        values = [_mpc(z) for z in tr.values[0]]
+        edges = budget.edge_errors(central, tr.log_z0[0], values, tr.mus)
+        structure = _structure(density, central, fit, values, tr.mus)
         for k, mu in enumerate(tr.mus):
-            z = tr.values[0][k]
             model_err = model_noise = None
             if diffs:
                 i = max(range(len(diffs)), key=lambda i: engine.upper(diffs[i][k]))
                 model_err = engine.upper(diffs[i][k])
                 model_noise = diff_noise[i][k] if diff_noise else None
-            rows.append(Row(mu=mu, value=_mpc(z), quad_err=tr.quad_err[0][k],
+            if structure[k] is not None:
+                model_err = max(model_err or 0, structure[k])
+            if spurious > 0:
+                model_err = (model_err or 0) + spurious * (1 + abs(values[k]))
+            rows.append(Row(mu=mu, value=values[k], quad_err=tr.quad_err[0][k],
                             model_err=model_err, edge_err=edges[k], stat_err=stat[k],
                             model_noise=model_noise, resolved=tr.resolved[k],
-                            degree=central.degree, digits=digits))
-    volume = volume if volume is not None else density.volume
+                            degree=central.degree, digits=s.digits, fit_ok=fit_ok,
+                            structure_err=structure[k]))
+    volume = s.volume if s.volume is not None else density.volume
     info = {
         "model": central.label,
         "degree": central.degree,
@@ -123,7 +136,8 @@ def _analyse_fixed(density, mus, s):
         "nodes": tr.nodes,
         "integration": tr.method,
         "domain": list(central.domain),
-        "statistical_errors": _describe_errors(method, density, bootstrap_samples),
+        "statistical_errors": _describe_errors(method, density, s.bootstrap_samples),
+        "hidden_weight": _float_or_inf(budget.hidden_mass(central, tr.log_z0[0])),
         "notes": [],
     }
     if method == "bootstrap":
@@ -134,9 +148,16 @@ def _analyse_fixed(density, mus, s):
             "chi2_per_dof": central.chi2 / central.dof if central.dof else None,
             "degree_criterion": fit.criterion, "fit_consistent": fit.consistent,
             "model_err_against": [m.label for m in neighbours],
+            "spurious_weight": fit.spurious,
             "parity_test": fit.parity_test, "errors_estimated_from_residuals": fit.noise_estimated,
         })
+        if density.kind == "histogram":
+            info["histogram_fit"] = "bin integrals of the model (ln((count + 1/2)/width) corrected)"
         info["notes"].extend(fit.notes)
+        if not fit_ok:
+            info["misfit"] = (f"chi2/dof = {central.chi2 / max(central.dof, 1):.3g} at degree "
+                              f"{central.degree}: no Chebyshev degree fits the data within their "
+                              "errors; every row has the status misfit")
     else:
         info["model_err_against"] = "piecewise through every other knot"
     if method == "none":
@@ -151,6 +172,24 @@ def _analyse_fixed(density, mus, s):
     info["horizon"] = table.horizon()
     return Analysis(density=density, model=central, fit=fit, transform=tr, table=table,
                     seconds=time.perf_counter() - start)
+
+
+def _structure(density, model, fit, values, mus):
+    """The structure bound per mu (:mod:`signfree.analysis.budget`), or
+    None per mu where the data carry no errors to bound it with."""
+    sigma = fit.sigma if fit is not None else density.error
+    if sigma is None:
+        return [None] * len(mus)
+    res, keep = budget.residuals(density, model, fit.correction if fit is not None else None)
+    if fit is None:
+        res = np.zeros_like(res)   # the piecewise model passes through its data
+    if density.kind == "histogram" and fit is None:
+        sigma = 1 / np.sqrt(density.value[keep])
+    return budget.structure_errors(density, model, sigma, res, values, mus, keep)
+
+
+def _float_or_inf(x):
+    return float(x) if mpmath.isfinite(x) else "inf"
 
 
 def _mpc(z):
@@ -170,7 +209,10 @@ def _describe_errors(method, density, samples):
 def _analyse_per_mu(density, mus, s):
     """Per mu, the candidate degree with the smallest combined statistical
     and model error (sqrt(stat^2 + model^2)), among the automatic choice,
-    two candidates below and four above it."""
+    two candidates below and four above it (degrees the data reject are not
+    candidates). So that no degree is picked because its error happens to
+    be small, the model error of the row is at least the change from the
+    automatically chosen degree."""
     from signfree.models.chebyshev import candidate_degrees
     start = time.perf_counter()
     fit = fit_chebyshev(density, parity=s.parity)
@@ -186,18 +228,24 @@ def _analyse_per_mu(density, mus, s):
     for k in range(len(base.table.rows)):
         def cost(d):
             r = runs[d].table.rows[k]
-            if r.status == "unresolved":
+            if r.status in ("unresolved", "misfit"):
                 return mpmath.inf
             return mpmath.sqrt((r.stat_err or 0) ** 2 + (r.model_err or 0) ** 2)
         best = min(window, key=lambda d: (cost(d), d))
         if cost(best) == mpmath.inf:
             best = fit.model.degree
-        rows.append(runs[best].table.rows[k])
+        row = runs[best].table.rows[k]
+        if best != fit.model.degree:
+            with mpmath.workdps(s.digits + 10):
+                shift = abs(row.value - base.table.rows[k].value)
+            row = dataclasses.replace(row, model_err=max(row.model_err or 0, shift))
+        rows.append(row)
         used.append(best)
     info = dict(base.table.info)
-    info.update({"degree": "per-mu", "degrees_tried": window,
+    info.update({"degree": "per-mu", "degrees_tried": window, "degrees_used": used,
                  "degree_criterion": "per mu: smallest sqrt(stat_err^2 + model_err^2) among "
-                                     "the candidates tried"})
+                                     "the candidates the data accept; model_err at least the "
+                                     "change from the automatic degree"})
     table = ResultTable(rows=rows, model_label="chebyshev:per-mu", volume=base.table.volume,
                         info=info)
     info["horizon"] = table.horizon()

@@ -7,8 +7,14 @@ below 1e-308; they are mpmath numbers). Status, in order of precedence:
 
   unresolved     the wanted digits were not reached within the precision and
                  node limits, or quad_err or model_err >= |value|
+  misfit         no smoothing of the considered kind fits the data within their
+                 errors (or the fit puts weight where the data do not allow it):
+                 the value rests on a model the data reject; its digits are kept
+                 for inspection
   noise_limited  the statistical error >= |value|, or a model error >= |value|
-                 that is itself no larger than three times its statistical spread
+                 that is noise: the structure below the noise that the data do
+                 not exclude, or a change no larger than three times its own
+                 statistical spread
   edge_limited   edge_err >= 10% of |value|: the finite data range may hide
                  a contribution as large as the value
   ok             otherwise
@@ -23,7 +29,7 @@ from fractions import Fraction
 
 import mpmath
 
-STATUSES = ("ok", "edge_limited", "noise_limited", "unresolved", "beyond_radius")
+STATUSES = ("ok", "edge_limited", "noise_limited", "misfit", "unresolved", "beyond_radius")
 EDGE_FRACTION = mpmath.mpf("0.1")
 
 
@@ -41,6 +47,8 @@ class Row:
     resolved: bool = True
     degree: int = None
     digits: int = 12
+    fit_ok: bool = True
+    structure_err: mpmath.mpf = None
 
     @cached_property
     def magnitude(self):
@@ -57,14 +65,19 @@ class Row:
         """True when the model error is no larger than three times the statistical
         spread of that change itself (known with jackknife replicas): it is
         then noise of the larger fits rather than truncation."""
-        return (self.model_err is not None and self.model_noise is not None
-                and self.model_err <= 3 * self.model_noise)
+        if self.model_err is None:
+            return False
+        if self.structure_err is not None and 2 * self.structure_err >= self.model_err:
+            return True
+        return self.model_noise is not None and self.model_err <= 3 * self.model_noise
 
     @cached_property
     def status(self):
         mag = self.magnitude
         if not self.resolved or self.quad_err >= mag:
             return "unresolved"
+        if not self.fit_ok:
+            return "misfit"
         if self.model_err is not None and self.model_err >= mag:
             return "noise_limited" if self.model_err_is_noise else "unresolved"
         if self.stat_err is not None and self.stat_err >= mag:
@@ -243,8 +256,10 @@ class ResultTable:
         rows = sorted(self.rows, key=lambda r: abs(r.mu))
         last = None
         for r in rows:
-            if r.status in ("unresolved", "beyond_radius") or r.magnitude < 2 * r.total_err:
-                reason = "radius" if r.status == "beyond_radius" else r.dominant_error
+            if r.status in ("unresolved", "beyond_radius", "misfit") \
+                    or r.magnitude < 2 * r.total_err:
+                reason = {"beyond_radius": "radius", "misfit": "misfit"}.get(
+                    r.status, r.dominant_error)
                 stop = float(r.mu)
                 break
             last = r

@@ -55,13 +55,41 @@ def choose_method(density, method="auto", model_label="chebyshev"):
     return "none"
 
 
-def resampled_values(density, method, samples=200, seed=None):
+def student_factor(nu):
+    """t_nu quantile at 0.8413 (the one-sigma point of a normal) over the
+    normal's, so that a standard error estimated with nu degrees of
+    freedom, times this factor, gives a one-sigma interval that covers 68%
+    (Student 1908; the Cornish-Fisher expansion of the t quantile, Abramowitz
+    & Stegun 26.7.5, at z = 1: 1 + 1/(2 nu) + 1/(4 nu^2) + 1/(16 nu^3))."""
+    if nu is None or nu <= 0 or not np.isfinite(nu):
+        return 1.0
+    return 1 + 1 / (2 * nu) + 1 / (4 * nu * nu) + 1 / (16 * nu ** 3)
+
+
+def coverage_factor(method, n_replicas, nu_errors=None):
+    """The factor that calibrates a statistical error to one-sigma coverage:
+    the jackknife over R replicas has R - 1 degrees of freedom; the
+    bootstrap over R replicas underestimates the variance of a mean by
+    (R - 1)/R (Efron & Tibshirani 1993, 2.3) and has R - 1 degrees of
+    freedom; the covariance route has those of the errors it propagates
+    (``nu_errors``, None when they are stated)."""
+    R = n_replicas
+    if method == "jackknife":
+        return student_factor(R - 1)
+    if method == "bootstrap":
+        return np.sqrt(R / (R - 1)) * student_factor(R - 1)
+    if method == "covariance":
+        return student_factor(nu_errors)
+    return 1.0
+
+
+def resampled_values(density, method, samples=200, seed=None, sigma=None):
     """(central value, fit errors) of every resample of the replicas: the
-    replica mean (pooled counts for a histogram) and, when the density's
-    errors come from the replica scatter, that scatter recomputed from the
-    resample itself (keeping the central weights would miss their own noise
-    and its correlation with the data); otherwise the central errors (None
-    for histograms: Poisson errors of the resampled counts)."""
+    replica mean (pooled counts for a histogram) with the central fit's
+    errors ``sigma`` (pooled over neighbouring points, so that they are
+    nearly free of noise; the fit is then a linear function of the data
+    and the jackknife of a linear statistic is exact), or None for
+    histograms (Poisson errors of the resampled counts)."""
     reps = density.replicas
     R = reps.shape[0]
     if method == "jackknife":
@@ -69,31 +97,29 @@ def resampled_values(density, method, samples=200, seed=None):
     else:
         rng = np.random.default_rng(seed)
         picks = [rng.integers(0, R, R) for _ in range(samples)]
-    central = _fit_data(density)[2]
+    central = _fit_data(density)[2] if sigma is None else sigma
     out = []
     for idx in picks:
         sub = reps[idx]
         if density.kind == "histogram":
             out.append((sub.sum(axis=0), None))
             continue
-        sigma = central
-        if density.error_source == "replicas":
-            sigma = sub.std(axis=0, ddof=1) / np.sqrt(len(idx))
-            sigma = np.where(sigma > 0, sigma, central)
-        out.append((sub.mean(axis=0), sigma))
+        out.append((sub.mean(axis=0), central))
     return out
 
 
-def resampled_models(density, model, values):
+def resampled_models(density, model, values, correction=None):
     """The central model's recipe applied to every resample ((value, sigma)
-    pairs from :func:`resampled_values`)."""
+    pairs from :func:`resampled_values`); ``correction`` is the central fit's
+    bin correction of a histogram."""
     out = []
     for v, sigma in values:
         d = dataclasses.replace(density, value=v, replicas=None)
         if isinstance(model, PiecewiseModel):
             out.append(PiecewiseModel.from_density(d))
         else:
-            out.append(fit_degree(d, model.degree, model.parity, sigma=sigma))
+            out.append(fit_degree(d, model.degree, model.parity, sigma=sigma,
+                                  correction=correction))
     return out
 
 
@@ -144,14 +170,14 @@ def spread_relative(method, central, rows):
     return out
 
 
-def coefficient_covariance(density, model, sigma=None):
+def coefficient_covariance(density, model, sigma=None, correction=None):
     """(ks, L): the fitted coefficient indices and a factor of their
     covariance C = (A^T S^-2 A)^-1 = L L^T for the weighted least-squares fit,
     from the QR factorisation of the weighted design, L = diag(1/scale) R^-1
     (Golub & Van Loan, Matrix Computations, 5.3); C built this way is
     positive semi-definite even where A^T A is near singular."""
     ks = _basis(density.kind, model.degree, model.parity)
-    _, y, s = _fit_data(density)
+    _, y, s = _fit_data(density, correction)
     sigma = s if sigma is None else sigma
     A = _design(density, model.domain, ks) / sigma[:, None]
     scale = np.sqrt((A * A).sum(axis=0))

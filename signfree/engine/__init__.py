@@ -19,7 +19,7 @@ form of its integrand (``model.integrand``), and :func:`transform` sends the
 batch to the route for that form. A new form of model gets a route here.
 """
 from signfree.engine.balls import (GUARD_DIGITS, LOG2_10, MAX_NODES, MAX_PREC, abs_mid,
-                                   as_fractions, difference, precision_bits, to_mpf,
+                                   as_fractions, difference, mpf_to_arb, precision_bits, to_mpf,
                                    uniform_step, upper)
 from signfree.engine.transforms import Transform
 
@@ -54,5 +54,5 @@ def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=(
 
 
 __all__ = ["GUARD_DIGITS", "LOG2_10", "MAX_NODES", "MAX_PREC", "Transform", "abs_mid",
-           "as_fractions", "difference", "precision_bits", "to_mpf", "transform",
+           "as_fractions", "difference", "mpf_to_arb", "precision_bits", "to_mpf", "transform",
            "uniform_step", "upper"]

@@ -30,10 +30,13 @@ import numpy as np
 from numpy.polynomial import chebyshev as C
 import mpmath
 
+from signfree.density import pooled_errors
 from signfree.errors import InputError
+from signfree.models.shape import bin_correction, spurious_weight
 
 MAX_DEGREE = 80
 P_ACCEPT = 0.05
+SPIKE_LIMIT = 1e-3      # largest fraction of the weight a candidate may put where the data do not
 
 
 @dataclass(frozen=True)
@@ -87,6 +90,10 @@ class ChebyshevFit:
     parity_test: dict = field(default_factory=dict)
     noise_estimated: bool = False
     notes: tuple = ()
+    spurious: float = 0.0
+    correction: np.ndarray = None
+    sigma: np.ndarray = None
+    sigma_dof: int = None
 
 
 def _basis(kind, degree, parity):
@@ -102,11 +109,16 @@ def _basis(kind, degree, parity):
     return ks
 
 
-def _fit_data(density):
-    """(rows of the design generator, y, sigma or None) in the measured quantity."""
+def _fit_data(density, correction=None):
+    """(rows of the design generator, y, sigma or None) in the measured
+    quantity; ``correction`` (histograms: per bin, from
+    :func:`signfree.models.shape.bin_correction`) turns bin averages into
+    values of ln rho at the bin centres."""
     if density.kind == "slopes":
         return density.q, density.value, density.error
     q, y, err = density.log_density_points()
+    if correction is not None and density.kind == "histogram":
+        y = y - np.asarray(correction)[density.value > 0]
     return q, y, err
 
 
@@ -142,10 +154,10 @@ class NestedFits:
     |b - Q Q^T b|^2 + |(Q^T b)[m:]|^2 (Golub & Van Loan, Matrix Computations,
     5.3)."""
 
-    def __init__(self, density, parity, sigma, max_degree, chi2_scale=1.0):
+    def __init__(self, density, parity, sigma, max_degree, chi2_scale=1.0, correction=None):
         self.density, self.parity = density, parity
         self.ks = _basis(density.kind, max_degree, parity)
-        _, y, _ = _fit_data(density)
+        _, y, _ = _fit_data(density, correction)
         self.design = _design(density, density.domain, self.ks)
         A = self.design / sigma[:, None]
         b = y / sigma
@@ -179,12 +191,14 @@ def _model_from(density, degree, parity, ks, sol, design, chi2, dof):
     return ChebyshevModel(coef=coef, domain=density.domain, parity=parity, chi2=chi2, dof=dof)
 
 
-def fit_degree(density, degree, parity="none", y=None, sigma=None, domain=None):
+def fit_degree(density, degree, parity="none", y=None, sigma=None, domain=None,
+               correction=None):
     """Least-squares Chebyshev model of the given degree (``y`` overrides the
-    density's central values, for refitting replicas)."""
+    density's central values, for refitting replicas; ``correction`` as in
+    :func:`_fit_data`)."""
     domain = domain or density.domain
     ks = _basis(density.kind, degree, parity)
-    _, y0, s0 = _fit_data(density)
+    _, y0, s0 = _fit_data(density, correction)
     y = y0 if y is None else y
     sigma = (s0 if s0 is not None else np.ones_like(y)) if sigma is None else sigma
     design = _design(density, domain, ks)
@@ -211,19 +225,6 @@ def candidate_degrees(kind, n_points, parity, max_degree=MAX_DEGREE):
     return out
 
 
-def is_wild(density, model):
-    """True when the model rises more than 1 above its largest value at the
-    data between the data points (a fit that oscillates between its points
-    and would put spurious weight there)."""
-    a, b = model.domain
-    if density.kind == "slopes":
-        at_data = np.concatenate([density.q - density.width / 2, density.q + density.width / 2])
-    else:
-        at_data = _fit_data(density)[0]
-    fine = np.linspace(a, b, 20 * len(at_data) + 1)
-    return float(np.max(model.log_density(fine))) > float(np.max(model.log_density(at_data))) + 1.0
-
-
 def chi2_sf(chi2, dof):
     """P(X >= chi2) for X ~ chi^2 with dof degrees of freedom: the regularised
     upper incomplete gamma function Q(dof/2, chi2/2) (DLMF 8.2.4), from
@@ -236,13 +237,19 @@ def chi2_sf(chi2, dof):
 _p_value = chi2_sf
 
 
-def _n_fit(density):
-    return len(_fit_data(density)[1])
+def _n_fit(density, correction=None):
+    return len(_fit_data(density, correction)[1])
 
 
-def _select(density, parity, sigma, degree=None, max_degree=MAX_DEGREE, chi2_scale=1.0):
-    """Fit the candidate degrees; return (chosen, next, fits, consistent, criterion)."""
-    n = _n_fit(density)
+def _select(density, parity, sigma, degree=None, max_degree=MAX_DEGREE, chi2_scale=1.0,
+            correction=None):
+    """Fit every candidate degree from one QR factorisation and choose one:
+    the smallest whose chi^2 is consistent with the errors and whose shape
+    puts no more than SPIKE_LIMIT of its weight where the anchors do not
+    allow it (:func:`signfree.models.shape.spurious_weight`); else the
+    minimum of AIC among the shapely candidates, flagged as inconsistent.
+    Returns (chosen, next models, all fits, consistent, criterion)."""
+    n = _n_fit(density, correction)
     degrees = candidate_degrees(density.kind, n, parity, max_degree)
     if not degrees:
         need = len(_basis(density.kind, {"odd": 1}.get(parity, 2), parity)) + 1
@@ -255,21 +262,28 @@ def _select(density, parity, sigma, degree=None, max_degree=MAX_DEGREE, chi2_sca
         if degree not in degrees:
             raise InputError(density.source, f"{n} usable data points, but degree "
                              f"{degree} needs at least {len(_basis(density.kind, degree, parity)) + 1}")
-    top = degrees[-1] if degree is None else degrees[min(len(degrees) - 1,
-                                                         degrees.index(degree) + 2)]
-    nested = NestedFits(density, parity, sigma, top, chi2_scale)
+    nested = NestedFits(density, parity, sigma, degrees[-1], chi2_scale, correction)
+    spikes = {}
+
+    def shapely(d):
+        if d not in spikes:
+            spikes[d] = spurious_weight(density, nested.model(d))[0] <= SPIKE_LIMIT
+        return spikes[d]
+
+    def passes(d):
+        m = nested.model(d)
+        return _p_value(m.chi2, m.dof) >= P_ACCEPT
+
     if degree is not None:
         chosen = degree
         criterion = "degree given by the user"
-        consistent = _p_value(nested.model(degree).chi2, nested.model(degree).dof) >= P_ACCEPT
+        consistent = passes(degree) and shapely(degree)
     else:
-        chosen = next((d for d in degrees
-                       if _p_value(nested.model(d).chi2, nested.model(d).dof) >= P_ACCEPT
-                       and not is_wild(density, nested.model(d))), None)
+        chosen = next((d for d in degrees if passes(d) and shapely(d)), None)
         consistent = chosen is not None
-        criterion = "smallest degree with P(chi2) >= 0.05"
+        criterion = "smallest degree with P(chi2) >= 0.05 and no spurious weight"
         if chosen is None:
-            tame = [d for d in degrees if not is_wild(density, nested.model(d))] or degrees[:1]
+            tame = [d for d in degrees if shapely(d)] or degrees[:1]
             chosen = min(tame, key=lambda d: nested.model(d).chi2 + 2 * (n - nested.model(d).dof))
             criterion = "no degree consistent with the errors; minimum of AIC"
     i = degrees.index(chosen)
@@ -287,7 +301,9 @@ def domain_is_symmetric(domain):
 def fit_chebyshev(density, degree=None, parity=None, max_degree=MAX_DEGREE):
     """Fit ln rho by a Chebyshev series, degree chosen by the criterion in the
     module docstring unless ``degree`` is given. ``parity`` None means: the
-    density's stated symmetry, else detection."""
+    density's stated symmetry, else detection. Histograms are fitted as bin
+    integrals of the model (:func:`signfree.models.shape.bin_correction`,
+    two rounds of refitting)."""
     notes = []
     _, y, sigma = _fit_data(density)
     noise_estimated = sigma is None
@@ -301,51 +317,71 @@ def fit_chebyshev(density, degree=None, parity=None, max_degree=MAX_DEGREE):
         var = probe.chi2 / max(probe.dof, 1)
         sigma = np.full_like(y, np.sqrt(var) if var > 0 else 1.0)
         notes.append("no errors given: noise estimated from the residuals of degree "
-                     f"{dmax} (sigma = {np.sqrt(var):.3g})")
-    # Errors from the scatter of R replicas are themselves uncertain: the
-    # normalised residuals then follow Student's t with R - 1 degrees of
-    # freedom, whose mean square is (R - 1)/(R - 3), so chi^2 is rescaled by
-    # (R - 3)/(R - 1) before it is judged.
-    chi2_scale = 1.0
+                     f"{dmax} (sigma = {np.sqrt(var):.3g}); chi2 cannot judge the fit")
+    # Errors from the scatter of R replicas are themselves uncertain: they
+    # are pooled over neighbouring points (signfree.density.pooled_errors),
+    # and the normalised residuals then follow Student's t with the pooled
+    # degrees of freedom nu, whose mean square is nu / (nu - 2), so chi^2 is
+    # rescaled by (nu - 2) / nu before it is judged.
+    chi2_scale, nu = 1.0, None
     n_rep = len(density.replica_labels)
     if density.error_source == "replicas" and density.kind != "histogram":
-        if n_rep >= 4:
-            chi2_scale = (n_rep - 3) / (n_rep - 1)
-        else:
-            notes.append(f"errors from the scatter of only {n_rep} replicas are rough; the "
-                         "degree choice and chi2 rest on them")
+        sigma, nu = pooled_errors(sigma, n_rep)
+        chi2_scale = max(nu - 2, 1) / nu
+        if nu < 10:
+            notes.append(f"errors from the scatter of only {n_rep} replicas are rough "
+                         f"({nu} degrees of freedom after pooling); the degree choice and "
+                         "chi2 rest on them")
     parity = parity or density.symmetry
-    parity_test = {}
     if parity in ("even", "odd") and not domain_is_symmetric(density.domain):
         a, b = density.domain
         raise InputError(density.source, f"symmetry '{parity}' needs a q range symmetric "
                          f"about 0, but the data cover [{a:g}, {b:g}]")
-    if parity is None:
-        parity = "none"
-        if domain_is_symmetric(density.domain):
-            general, *_ = _select(density, "none", sigma, None, max_degree, chi2_scale)
-            d = general.degree + (general.degree % 2)
-            if d in candidate_degrees(density.kind, _n_fit(density), "even", max_degree):
-                even = fit_degree(density, d, "even", sigma=sigma)
-                full = fit_degree(density, d, "none", sigma=sigma)
-                dm = len(_basis(density.kind, d, "none")) - len(_basis(density.kind, d, "even"))
-                dchi2 = max(even.chi2 - full.chi2, 0.0) * chi2_scale
-                p = chi2_sf(dchi2, dm)
-                parity_test = {"test": "chi2 difference, even vs unrestricted",
-                               "degree": d, "delta_chi2": dchi2, "delta_m": dm, "p": p}
-                if p >= P_ACCEPT:
-                    parity = "even"
-                parity_test["result"] = parity
-    model, nxt, fits, consistent, criterion = _select(density, parity, sigma, degree,
-                                                      max_degree, chi2_scale)
+    correction = None
+    rounds = 3 if density.kind == "histogram" else 1
+    for _ in range(rounds):
+        chosen_parity, parity_test = _parity(density, parity, sigma, max_degree, chi2_scale,
+                                             correction)
+        model, nxt, fits, consistent, criterion = _select(
+            density, chosen_parity, sigma, degree, max_degree, chi2_scale, correction)
+        if density.kind == "histogram":
+            correction = bin_correction(density, model)
+    spurious, excess = spurious_weight(density, model)
     if nxt and nxt[0].degree < model.degree:
         notes.append(f"degree {model.degree} is the largest candidate: the truncation error "
                      f"is estimated against lower degrees")
-    if not consistent and degree is None:
+    if not consistent:
         best = model.chi2 / max(model.dof, 1)
+        if spurious > SPIKE_LIMIT:
+            notes.append(f"the fit puts {spurious:.2g} of its weight between the data points "
+                         f"where they do not allow it (up to {excess:.3g} above them)")
         notes.append(f"no degree fits the data within their errors (chi2/dof = {best:.3g} at "
                      f"degree {model.degree}): errors may be underestimated, or ln rho is not "
                      "smooth enough for a polynomial")
     return ChebyshevFit(model=model, next_models=tuple(nxt), candidates=fits, criterion=criterion,
                         consistent=consistent, parity_test=parity_test,
-                        noise_estimated=noise_estimated, notes=tuple(notes))
+                        noise_estimated=noise_estimated, notes=tuple(notes),
+                        spurious=spurious,
+                        correction=correction, sigma=sigma, sigma_dof=nu)
+
+
+def _parity(density, parity, sigma, max_degree, chi2_scale, correction):
+    """(parity, test record): the stated parity, or on a domain symmetric
+    about 0 the even model when the chi^2-difference test against the
+    unrestricted model at its chosen degree gives p >= 0.05."""
+    if parity is not None:
+        return parity, {}
+    if not domain_is_symmetric(density.domain):
+        return "none", {}
+    general = _select(density, "none", sigma, None, max_degree, chi2_scale, correction)[0]
+    d = general.degree + (general.degree % 2)
+    if d not in candidate_degrees(density.kind, _n_fit(density, correction), "even", max_degree):
+        return "none", {}
+    even = fit_degree(density, d, "even", sigma=sigma, correction=correction)
+    full = fit_degree(density, d, "none", sigma=sigma, correction=correction)
+    dm = len(_basis(density.kind, d, "none")) - len(_basis(density.kind, d, "even"))
+    dchi2 = max(even.chi2 - full.chi2, 0.0) * chi2_scale
+    p = chi2_sf(dchi2, dm)
+    result = "even" if p >= P_ACCEPT else "none"
+    return result, {"test": "chi2 difference, even vs unrestricted", "degree": d,
+                    "delta_chi2": dchi2, "delta_m": dm, "p": p, "result": result}
