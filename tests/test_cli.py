@@ -49,8 +49,11 @@ def read_results(folder):
 
 def test_run_gaussian_slopes_against_the_closed_form(tmp_path):
     # Gradshteyn & Ryzhik 3.896.4: Z(mu)/Z(0) = exp(-mu^2 sigma^2 / 2); with
-    # +-20 sigma of range the edges are below 1e-86, so every row up to
-    # D = 70 must be ok and agree to the digits it prints.
+    # +-20 sigma of range the edges are below 1e-86. The slopes are exact but
+    # stated to 1e-13: a ripple in ln rho of that size is invisible to them
+    # and moves Z(mu)/Z(0) by about as much at any mu, so rows down to
+    # ~1e-12 are ok and agree to the digits they print, and the deeper rows
+    # (down to D = 70, still computed at the precision they need) are not ok.
     src = gaussian_slopes(tmp_path / "g.csv")
     res = signfree("run", src, "--mu", "0:6:13", "--out", "out", cwd=tmp_path)
     assert res.returncode == 0, res.stderr
@@ -60,19 +63,27 @@ def test_run_gaussian_slopes_against_the_closed_form(tmp_path):
     for row in rows:
         mu = float(row["mu"])
         exact = mpmath.exp(-mpmath.mpf(mu) ** 2 * 9 / 2)
-        assert row["status"] == "ok"
+        if exact > 1e-7:
+            assert row["status"] == "ok"
+        if exact < 1e-15:
+            assert row["status"] == "noise_limited"
+        if row["status"] != "ok":
+            continue
         got = mpmath.mpf(row["avg_phase"])
         digits = len(row["avg_phase"].split("e")[0].replace(".", "").lstrip("0"))
-        assert digits >= 10
+        assert digits >= (10 if exact > 1e-2 else 1)
         assert abs(got - exact) <= 10 ** (-digits + 1) * exact
         assert float(row["cancel_orders"]) == pytest.approx(float(-mpmath.log10(exact)), abs=0.01)
         assert row["avg_phase_imag"] == "0"
-        assert float(row["delta_f"]) == pytest.approx(mu ** 2 * 9 / 2 / 20, rel=1e-9, abs=1e-12)
+        df = row["delta_f"]
+        places = len(df.split("e")[0].split(".")[1]) if "." in df else 0
+        assert float(df) == pytest.approx(mu ** 2 * 9 / 2 / 20, abs=10 ** -places + 1e-12)
     summary = json.loads((tmp_path / "out" / "summary.json").read_text())
     assert summary["input"]["sha256"] == hashlib.sha256(src.read_bytes()).hexdigest()
     assert summary["model"] == "chebyshev:2" and summary["parity"] == "even"
     assert summary["precision_digits"] >= 70 + 12
-    assert summary["statuses"]["ok"] == 13
+    assert summary["statuses"]["ok"] >= 5
+    assert summary["horizon"]["reason"] == "noise"
     assert summary["versions"]["python-flint"]
 
 

@@ -13,6 +13,7 @@ from scipy import stats
 from signfree import engine
 from signfree.models.chebyshev import ChebyshevModel
 from signfree.analysis.cumulant import cumulant_rows
+from signfree.analysis.results import Row
 from signfree.engine.moments import model_cumulants
 from signfree.models.cumulant import (CumulantModel, histogram_cumulant_errors,
                                       histogram_cumulants, moments_to_cumulants,
@@ -277,15 +278,21 @@ def test_cumulant_rows_statuses():
     nxt = cm.next_order_model()
     assert nxt.order == 4
     mus = [Fraction(1, 10), Fraction(1, 2), Fraction(2), Fraction(3)]
-    rows = cumulant_rows(cm, nxt, mus, radius=2.5, digits=12)
+    rows = cumulant_rows(cm, mus, next_model=nxt, radius=2.5, digits=12)
     assert [r.status for r in rows][-1] == "beyond_radius"
-    assert rows[-1].avg_phase == ""
+    assert rows[-1].avg_phase == "" and rows[-1].cancel_orders is None
     assert rows[0].status == "ok"
     z = mpmath.exp(-2 * mpmath.mpf("0.01") / 2)
     assert abs(rows[0].value - z) < 1e-15
-    # |Z_2 - Z_4| / (1 - (mu / R)^2): the geometric tail at radius R = 2.5
+    # without a full transform to compare with: |Z_2 - Z_4|
     assert rows[0].model_err == pytest.approx(
-        float(abs(z * (mpmath.exp(-0.3 * 1e-4 / 24) - 1))) / (1 - (0.1 / 2.5) ** 2), rel=1e-6)
+        float(abs(z * (mpmath.exp(-0.3 * 1e-4 / 24) - 1))), rel=1e-6)
+    # with one, the difference from it plus its own total error
+    ref = [Row(mu=m, value=r.value * (1 + mpmath.mpf("1e-3")), quad_err=mpmath.mpf(0),
+               edge_err=mpmath.mpf("1e-5")) for m, r in zip(mus, rows)]
+    against = cumulant_rows(cm, mus, reference=ref, digits=12)
+    for a, r in zip(against, ref):
+        assert a.model_err == pytest.approx(float(abs(a.value) * 1e-3 + 1e-5), rel=1e-9)
     # stat_err = |Z| err_2 mu^2 / 2 (odd orders are zero by parity)
     assert rows[1].stat_err == pytest.approx(float(abs(rows[1].value)) * 0.02 * 0.25 / 2, rel=1e-9)
     # a kappa within two errors of zero is skipped by next_order_model

@@ -13,8 +13,8 @@ from numpy.polynomial import chebyshev as C
 
 from signfree.models.chebyshev import ChebyshevModel
 from signfree.scenarios import rotor_log_density, rotor_phase_factor
-from signfree.analysis.zeros import (Zero, count_zeros, find_zeros, partners, unpaired,
-                                     with_partners)
+from signfree.analysis.zeros import (Zero, ZeroResult, count_zeros, find_zeros, partners,
+                                     unpaired, with_partners)
 from signfree.cli.zeros import add_parser as add_zeros_parser, cmd_zeros
 from signfree.engine.complex_mu import phase_factor
 
@@ -79,8 +79,8 @@ def test_simple_zeros_of_the_cosh_density(cosh_model):
     assert res.note and "does not contain the disc" in res.note
     assert res.radius_lower_bound == 1
     rows = res.records()
-    assert list(rows[0]) == ["re", "im", "err", "multiplicity", "edge_shift"]
-    assert rows[0]["im"] == "0"
+    assert list(rows[0]) == list(ZeroResult.COLUMNS)
+    assert rows[0]["im"] == "0" and rows[0]["status"] == "not assessed"
     # the ends (rho(L)/rho(0) ~ e^-32) cannot move these zeros visibly
     assert not any(z.edge_limited for z in res.zeros)
     assert all(z.edge_shift < tol for z in res.zeros)
@@ -210,9 +210,13 @@ def test_zeros_command_writes_the_table_and_summary(tmp_path, capsys):
                 "--digits", "8"]) == 0
     with open(out / "zeros.csv") as f:
         rows = list(csv.DictReader(f))
-    assert list(rows[0]) == ["re", "im", "err", "multiplicity", "edge_shift"]
-    assert len(rows) == 2
+    assert list(rows[0]) == list(ZeroResult.COLUMNS)
+    assert len(rows) == 2 and all(r["status"] == "stable" for r in rows)
     assert sorted(round(float(r["re"]), 6) for r in rows) == [-3.141593, 3.141593]
+    # the printed digits are those the total error supports, and the
+    # exact zeros +-pi lie within it
+    for r in rows:
+        assert abs(abs(float(r["re"])) - math.pi) <= float(r["total_err"]) + 1e-8
     summary = json.loads((out / "summary.json").read_text())
     assert summary["count"] == 2 and float(summary["radius"]) == pytest.approx(math.pi, rel=1e-7)
     assert summary["note"] and summary["model"].startswith("chebyshev:")

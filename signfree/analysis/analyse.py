@@ -51,7 +51,10 @@ def analyse(density, mus, settings=None, samples=None, **changes):
     density)."""
     s = settings_of(settings, **changes)
     if s.model == "cumulant":
-        return analyse_cumulant(density, mus, s, samples)
+        reference = _analyse_fixed(density, mus, s.with_(model="chebyshev",
+                                                         degree=None if s.degree == "per-mu"
+                                                         else s.degree))
+        return analyse_cumulant(density, mus, s, samples, reference)
     if s.degree == "per-mu":
         return _analyse_per_mu(density, mus, s)
     return _analyse_fixed(density, mus, s)
@@ -66,6 +69,11 @@ def _analyse_fixed(density, mus, s):
     batch = [central] + neighbours
     correction = fit.correction if fit is not None else None
     resamples, neighbour_resamples = [], []
+    if method == "covariance" and fit is None:
+        # the piecewise model is not linear in the data: propagate by draws
+        method = "draws"
+        resamples = uncertainty.resampled_models(density, central,
+                                                 uncertainty.perturbed_values(density))
     if method in ("jackknife", "bootstrap"):
         if method == "bootstrap" and seed is None:
             seed = int(np.random.SeedSequence().entropy % (1 << 32))
@@ -87,7 +95,8 @@ def _analyse_fixed(density, mus, s):
     n_res = len(resamples)
     rep_rows = tr.values[len(batch):len(batch) + n_res]
     if resamples:
-        stat = uncertainty.spread_relative(method, tr.values[0], rep_rows)
+        stat = uncertainty.spread_relative("bootstrap" if method == "draws" else method,
+                                           tr.values[0], rep_rows)
     elif method == "covariance":
         stat = uncertainty.propagate_covariance(tr.values[0], tr.gradient, ks, factor)
     else:
@@ -111,12 +120,16 @@ def _analyse_fixed(density, mus, s):
         values = [_mpc(z) for z in tr.values[0]]
         edges = budget.edge_errors(central, tr.log_z0[0], values, tr.mus)
         structure = _structure(density, central, fit, values, tr.mus)
+        floor = (budget.piecewise_floor(central, tr.log_z0[0], values, tr.mus)
+                 if fit is None else [None] * K)
         for k, mu in enumerate(tr.mus):
             model_err = model_noise = None
             if diffs:
                 i = max(range(len(diffs)), key=lambda i: engine.upper(diffs[i][k]))
                 model_err = engine.upper(diffs[i][k])
                 model_noise = diff_noise[i][k] if diff_noise else None
+            if floor[k] is not None:
+                model_err = max(model_err or 0, floor[k])
             if structure[k] is not None:
                 model_err = max(model_err or 0, structure[k])
             if spurious > 0:
@@ -146,6 +159,7 @@ def _analyse_fixed(density, mus, s):
         info.update({
             "chi2": central.chi2, "dof": central.dof,
             "chi2_per_dof": central.chi2 / central.dof if central.dof else None,
+            "chi2_scale": fit.chi2_scale,
             "degree_criterion": fit.criterion, "fit_consistent": fit.consistent,
             "model_err_against": [m.label for m in neighbours],
             "spurious_weight": fit.spurious,
@@ -202,6 +216,8 @@ def _describe_errors(method, density, samples):
         "jackknife": f"delete-one jackknife over {n_rep} replicas, refit and integrated",
         "bootstrap": f"bootstrap, {samples} resamples of {n_rep} replicas, refit and integrated",
         "covariance": "linear propagation of the fit-coefficient covariance through the integral",
+        "draws": f"the stated errors propagated by {uncertainty.PIECEWISE_DRAWS} Monte Carlo "
+                 "draws of the data",
         "none": "none",
     }[method]
 

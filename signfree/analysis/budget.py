@@ -151,26 +151,25 @@ def resolution(density):
     return RESOLUTION * np.pi / spacing
 
 
-def structure_errors(density, model, sigma, residuals, values, mus, keep=None,
-                     sigmas=STRUCTURE_SIGMAS):
-    """Per mu, the bound of the module docstring on what a ripple the data
-    do not exclude can change R(mu), as mpf (inf where the data are blind)."""
-    mu = np.array([float(m) for m in mus])
+def ripple_modes(density, model, sigma, residuals, mu_top, keep=None):
+    """(omegas, weights, F): the ripple modes w_j up to mu_top plus the band
+    of F (and no higher than the data resolve), their weights
+    (m_j^2 + 1) A_j^2, and F(x) = Z(x)/Z(0) of the model at real x as a
+    vectorised function (double precision)."""
     a, b = model.domain
     step = 2 * np.pi / (b - a)
-    probe = max(np.abs(mu).max() + 40 * step, 64 * step)
+    probe = max(mu_top + 40 * step, 64 * step)
     nu, G, c = model_transform(model, probe)
     below = np.flatnonzero(np.abs(G) < F_FLOOR)
     band = nu[below[0]] if below.size else nu[-1]
-    top = np.abs(mu).max() + band
+    top = mu_top + band
     if top + band > probe:
         nu, G, c = model_transform(model, top + band)
     limit = resolution(density)
     omegas = step * np.arange(1, int(np.ceil(min(top, limit) / step)) + 1)
     if omegas.size == 0:
-        return [mpmath.mpf(0)] * len(values)
+        return omegas, omegas, None
     A, m = mode_amplitudes(density, omegas, sigma, residuals, keep)
-    weight = (m * m + 1) * A * A
 
     def F(x):
         """F at real x (F(-x) = conj F(x) for a real density)."""
@@ -179,6 +178,23 @@ def structure_errors(density, model, sigma, residuals, values, mus, keep=None,
         g = g * np.exp(1j * ax * c)
         return np.where(x < 0, np.conj(g), g)
 
+    return omegas, (m * m + 1) * A * A, F
+
+
+def combine(weights, G, sigmas=STRUCTURE_SIGMAS):
+    """sigmas sqrt(sum_j weights_j (G_j / 2)^2) as mpf (inf where blind)."""
+    with np.errstate(invalid="ignore", over="ignore"):
+        total = float(np.sqrt(np.sum(np.where(G > 0, weights * (G / 2) ** 2, 0.0))))
+    return mpmath.mpf(sigmas * total) if np.isfinite(total) else mpmath.inf
+
+
+def structure_errors(density, model, sigma, residuals, values, mus, keep=None):
+    """Per mu, the bound of the module docstring on what a ripple the data
+    do not exclude can change R(mu), as mpf (inf where the data are blind)."""
+    mu = np.array([float(m) for m in mus])
+    omegas, weights, F = ripple_modes(density, model, sigma, residuals, np.abs(mu).max(), keep)
+    if F is None:
+        return [mpmath.mpf(0)] * len(values)
     Fw, Fmw = F(omegas), F(-omegas)
     out = []
     for k, z in enumerate(values):
@@ -187,10 +203,8 @@ def structure_errors(density, model, sigma, residuals, values, mus, keep=None,
             continue
         mag = abs(z)
         r = complex(z / mag) * float(mag) if mag > mpmath.mpf("1e-300") else 0j
-        G1 = np.abs(F(mu[k] + omegas) - r * Fw) + np.abs(F(mu[k] - omegas) - r * Fmw)
-        with np.errstate(invalid="ignore", over="ignore"):
-            total = float(np.sqrt(np.sum(np.where(G1 > 0, weight * (G1 / 2) ** 2, 0.0))))
-        out.append(mpmath.mpf(sigmas * total) if np.isfinite(total) else mpmath.inf)
+        G = np.abs(F(mu[k] + omegas) - r * Fw) + np.abs(F(mu[k] - omegas) - r * Fmw)
+        out.append(combine(weights, G))
     return out
 
 
@@ -253,3 +267,39 @@ def hidden_mass(model, log_z0):
     if getattr(model, "edge_free", False):
         return mpmath.mpf(0)
     return sum((m for _, _, m in tails(model, log_z0)), mpmath.mpf(0))
+
+
+# ------------------------------------------------------------ piecewise
+
+def piecewise_floor(model, log_z0, values, mus):
+    """What the piecewise-linear reconstruction itself gets wrong, per mu:
+    the smaller of its interpolation error and its cusp terms.
+
+    Interpolation: on an interval of width h, a smooth ln rho with
+    curvature c deviates from the chord by up to h^2 |c| / 8, on average
+    h^2 |c| / 12, so the weight differs by about that fraction (c from the
+    slope change at the knots), a bound for every mu (times 1 + |R| for the
+    normalisation). Cusps: integrating by parts, each knot t_j where the
+    slope jumps from s_{j-1} to s_j adds
+    rho(t_j) (s_j - s_{j-1}) / ((s_{j-1} + i mu)(s_j + i mu)) to Z(mu), a
+    term a smooth density does not have; its magnitudes summed bound the
+    artefact, which near mu = 2 pi / h adds up coherently (the transform of
+    a cusp decays only like 1/mu^2)."""
+    t, v = np.asarray(model.knots, dtype=float), np.asarray(model.values, dtype=float)
+    h = np.diff(t)
+    s = np.diff(v) / h
+    jump = np.abs(np.diff(s))                         # at the inner knots
+    curv = jump / (0.5 * (h[1:] + h[:-1]))
+    rho = [mpmath.exp(mpmath.mpf(float(x)) - log_z0) for x in v[1:-1]]
+    interp = sum((r * float(hh * hh * c / 12 * hh) for r, hh, c in
+                  zip(rho, 0.5 * (h[1:] + h[:-1]), curv)), mpmath.mpf(0))
+    out = []
+    for z, mu in zip(values, mus):
+        m = float(mu)
+        if m == 0:
+            out.append(mpmath.mpf(0))
+            continue
+        den = np.hypot(s[:-1], m) * np.hypot(s[1:], m)
+        cusp = sum((r * float(j / d) for r, j, d in zip(rho, jump, den)), mpmath.mpf(0))
+        out.append(min(cusp, interp * (1 + abs(z))))
+    return out

@@ -159,27 +159,32 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
     chosen = fit.model
     routes = {}
     notes = sample_notes + list(fit.notes)
+    chosen_rows = None
     for degree in [chosen.degree] + _neighbour_degrees(density, chosen):
         result = analyse(density, mus, model="chebyshev", degree=degree, digits=digits,
                          parity=chosen.parity)
         routes[result.model.label] = result.table.rows
+        if degree == chosen.degree:
+            chosen_rows = result.table.rows
     reference = chosen.label
     top = max_cumulant_order - max_cumulant_order % 2
-    kappa, kappa_err, source = cumulant_source(data, density, chosen, top + 2)
+    kappa, kappa_err, source = cumulant_source(data, density, fit, top + 2)
+    lower = None
     if radius == "auto":
-        radius, zero_notes = convergence_radius(chosen, mus)
+        radius, lower, zero_notes = convergence_radius(fit, density, mus)
         notes.extend(zero_notes)
     for K in range(2, top + 1, 2):
         cm = CumulantModel(kappa=tuple(kappa), order=K,
                            kappa_err=None if kappa_err is None else tuple(kappa_err),
                            parity=chosen.parity)
-        nxt = cm.next_order_model()
-        routes[cm.label] = cumulant_rows(cm, nxt, mus, radius=radius, digits=digits)
+        routes[cm.label] = cumulant_rows(cm, mus, reference=chosen_rows, radius=radius,
+                                         digits=digits)
     pw = analyse(density, mus, model="piecewise", digits=digits)
     routes["piecewise"] = pw.table.rows
     info = {"cumulants_from": source, "notes": notes,
             "kappa": [mpmath.nstr(k, 15) for k in kappa],
             "kappa_err": None if kappa_err is None else [f"{e:.3g}" for e in kappa_err],
             "degree_criterion": fit.criterion, "parity": chosen.parity,
+            "radius_at_least": None if lower is None else float(lower),
             "seconds": round(time.perf_counter() - start, 3)}
     return Comparison(mus=mus, routes=routes, reference=reference, radius=radius, info=info)

@@ -7,9 +7,11 @@ import time
 from dataclasses import dataclass
 
 import mpmath
+import numpy as np
 
 from signfree import engine
 from signfree.analysis.results import Analysis, ResultTable, Row
+from signfree.analysis.zero_errors import assess, perturbed_models
 from signfree.analysis.zeros import ContourError, count_zeros, find_zeros
 from signfree.engine.moments import model_cumulants
 from signfree.io.samples import Samples
@@ -48,27 +50,29 @@ class CumulantRow(Row):
 
     @property
     def cancel_orders(self):
+        """None past the radius: the series says nothing there, not even a
+        bound on the depth."""
         if self.beyond_radius:
-            return float(-mpmath.log10(self.magnitude + self.total_err))
+            return None
         return super().cancel_orders
 
 
 CUMULANT_STATUSES = ("ok", "edge_limited", "noise_limited", "unresolved", "beyond_radius")
 
 
-def cumulant_rows(model, next_model, mus, radius=None, digits=12):
-    """Rows (:class:`CumulantRow`) of a cumulant model over mu: value,
-    quad_err (ball radius), model_err = |Z_K - Z_next| against
-    ``next_model`` (None: no model error known), divided by
-    1 - (|mu| / radius)^(order step) for a finite radius: by the
-    Cauchy-Hadamard formula the cumulants grow like n! / radius^n, so the
-    terms of the series shrink geometrically with that ratio and the whole
-    omitted tail is about the first omitted term over (1 - ratio) (an
-    asymptotic estimate, not a bound); stat_err from kappa_err by
-    linear propagation, |Z| sum_n err_n |mu|^n / n! (an upper bound of the
-    standard error of the linearised ln Z for any correlation of the kappa,
-    by Minkowski's inequality), edge_err 0 (the expansion has no data range)
-    and the status, 'beyond_radius' where |mu| >= ``radius``."""
+def cumulant_rows(model, mus, reference=None, next_model=None, radius=None, digits=12):
+    """Rows (:class:`CumulantRow`) of a cumulant model over mu.
+
+    model_err: with ``reference`` rows (the full transform of the density
+    the cumulants describe, with their own errors) the truncation error is
+    computed, not estimated: |Z_K - Z_ref| + total_err_ref bounds
+    |Z_K - Z_true|. Without a reference, the change to ``next_model`` (an
+    estimate only). stat_err from kappa_err by linear propagation,
+    |Z| sum_n err_n |mu|^n / n! (an upper bound of the standard error of the
+    linearised ln Z for any correlation of the kappa, by Minkowski's
+    inequality); edge_err 0 (the reference's edge error is inside its total
+    error); 'beyond_radius' where |mu| >= ``radius`` (the distance to the
+    nearest zero of Z that the data determine)."""
     batch = [model] + ([next_model] if next_model is not None else [])
     tr = engine.transform(batch, mus, digits=digits)
     rad = None if radius is None else mpmath.mpf(radius)
@@ -79,13 +83,11 @@ def cumulant_rows(model, next_model, mus, radius=None, digits=12):
             value = mpmath.mpc(engine.to_mpf(z.real), engine.to_mpf(z.imag))
             m = abs(mpmath.mpf(mu.numerator) / mu.denominator)
             model_err = None
-            if next_model is not None:
+            if reference is not None:
+                ref = reference[k]
+                model_err = abs(value - ref.value) + ref.total_err
+            elif next_model is not None:
                 model_err = engine.upper(engine.difference(z, tr.values[1][k]))
-                if rad is not None and mpmath.isfinite(rad) and m < rad:
-                    # the terms shrink like (|mu| / R)^n (Cauchy-Hadamard):
-                    # the omitted tail is about the first omitted term
-                    # times 1 / (1 - (|mu| / R)^step)
-                    model_err /= 1 - (m / rad) ** (next_model.order - model.order)
             stat = None
             if model.kappa_err is not None:
                 stat = abs(value) * mpmath.fsum(
@@ -98,36 +100,42 @@ def cumulant_rows(model, next_model, mus, radius=None, digits=12):
     return rows
 
 
-def convergence_radius(model, mus, digits=6):
-    """(radius, notes): the distance from 0 to the nearest zero of the model's
-    Z inside the square |Re mu|, |Im mu| <= 1.05 max |mu| (which contains
-    every requested mu), or infinity when that square holds no zero (the
-    series then converges at every requested mu)."""
+def convergence_radius(fit, density, mus, digits=6):
+    """(radius or None, lower bound or None, notes): the distance from 0 to
+    the nearest zero of Z that the data determine
+    (:func:`signfree.analysis.zero_errors.assess`), searched in squares
+    around 0 that grow from a quarter of max |mu| to 1.05 max |mu| until one
+    holds a zero (the first square without one bounds the radius from
+    below)."""
     top = max(abs(float(m)) for m in mus)
     if top == 0:
-        return mpmath.inf, []
-    M = 1.05 * top
-    box = (-M, M, -M, M)
+        return None, None, []
     notes = []
-    try:
-        count, used = count_zeros(model, box, digits=digits)
-        if count == 0:
-            return mpmath.inf, notes
-        result = find_zeros(model, box, digits=digits)
-    except ContourError as exc:
-        return None, [f"convergence radius unknown: {exc}"]
-    notes.extend(result.notes)
-    if result.radius is None:
-        return mpmath.inf, notes
-    nearest = min(result.zeros, key=abs)
-    if nearest.edge_limited:
-        notes.append(f"the nearest zero of Z (|mu| = {mpmath.nstr(abs(nearest), 6)}) may be an "
-                     "artefact of the finite data range; the radius may be larger")
-    return result.radius, notes
+    r, lower = top / 4, None
+    while True:
+        box = (-r, r, -r, r)
+        try:
+            count, used = count_zeros(fit.model, box, digits=digits)
+            if count:
+                result = assess(find_zeros(fit.model, box, digits=digits), fit, density)
+                notes.extend(result.notes)
+                return result.radius, result.radius_lower_bound or lower, notes
+        except ContourError as exc:
+            return None, lower, notes + [f"convergence radius unknown: {exc}"]
+        lower = mpmath.mpf(r)
+        if r >= 1.05 * top:
+            notes.append(f"no zero of the smoothed model within |Re mu|, |Im mu| <= {r:.4g}: "
+                         "the radius of convergence is at least that")
+            return None, lower, notes
+        r = min(2 * r, 1.05 * top)
 
 
-def cumulant_source(data, density, model, order):
-    """(kappa, kappa_err or None, source description)."""
+def cumulant_source(data, density, fit, order):
+    """(kappa, kappa_err or None, source description): k-statistics of raw
+    samples, cumulants of a histogram's counts, or of the smoothed density,
+    whose errors come from the same resamples as the values (jackknife over
+    replicas, or fits drawn from the coefficient covariance)."""
+    model = fit.model
     if isinstance(data, Samples):
         sc = sample_cumulants(data, order)
         return sc.kappa, sc.kappa_err, (f"samples (k-statistics, blocked jackknife, block "
@@ -135,24 +143,36 @@ def cumulant_source(data, density, model, order):
     if density.kind == "histogram":
         return (histogram_cumulants(density, order), histogram_cumulant_errors(density, order),
                 "histogram counts")
-    return model_cumulants(model, order), None, f"density of {model.label}"
+    kappa = model_cumulants(model, order)
+    method, models = perturbed_models(density, fit)
+    if len(models) < 2:
+        return kappa, None, f"density of {model.label}"
+    rows = np.array([[float(k) for k in model_cumulants(m, order, digits=15)] for m in models])
+    n = len(rows)
+    dev = ((rows - rows.mean(axis=0)) ** 2).sum(axis=0)
+    spread = np.sqrt((n - 1) / n * dev) if method == "jackknife" else np.sqrt(dev / (n - 1))
+    errs = [float(e) for e in spread]
+    return kappa, errs, f"density of {model.label} ({method} over {n} resamples for the errors)"
 
 
-def analyse_cumulant(density, mus, s, samples=None):
-    """The truncated cumulant series in closed form: model_err from the next
-    non-zero order, status beyond_radius past the nearest zero of Z of the
-    Chebyshev model (the series' radius of convergence)."""
+def analyse_cumulant(density, mus, s, samples=None, reference=None):
+    """The truncated cumulant series in closed form. model_err compares it
+    with ``reference`` (the Chebyshev analysis of the same data over the same
+    mu, an :class:`Analysis`): the truncation error against the density it
+    came from, plus that analysis's own errors. Status beyond_radius past
+    the nearest zero of Z that the data determine."""
     start = time.perf_counter()
-    order, digits, volume, parity = s.order, s.digits, s.volume, s.parity
-    fit = fit_chebyshev(density, parity=parity)
+    order, digits, volume = s.order, s.digits, s.volume
+    fit = reference.fit if reference is not None else fit_chebyshev(density, parity=s.parity)
     mus = engine.as_fractions(mus)
     kappa, kappa_err, source = cumulant_source(samples if samples is not None else density,
-                                                density, fit.model, order + 2)
+                                               density, fit, order + 2)
     cm = CumulantModel(kappa=tuple(kappa), order=order, parity=fit.model.parity,
                        kappa_err=None if kappa_err is None else tuple(kappa_err))
-    nxt = cm.next_order_model()
-    radius, notes = convergence_radius(fit.model, mus)
-    rows = cumulant_rows(cm, nxt, mus, radius=radius, digits=digits)
+    radius, lower, notes = convergence_radius(fit, density, mus)
+    rows = cumulant_rows(cm, mus, reference=None if reference is None else reference.table.rows,
+                         next_model=None if reference is not None else cm.next_order_model(),
+                         radius=radius, digits=digits)
     volume = volume if volume is not None else density.volume
     info = {
         "model": cm.label, "degree": None, "order": order, "parity": cm.parity,
@@ -160,16 +180,16 @@ def analyse_cumulant(density, mus, s, samples=None):
         "cumulant_errors": None if kappa_err is None else [mpmath.nstr(e, 3)
                                                            for e in kappa_err[:order]],
         "cumulants_from": source,
-        "convergence_radius": None if radius is None else
-        ("inf" if radius == mpmath.inf else float(radius)),
-        "radius_from": f"zeros of Z of {fit.model.label}",
-        "model_err_against": None if nxt is None else nxt.label,
+        "convergence_radius": None if radius is None else float(radius),
+        "convergence_radius_at_least": None if lower is None else float(lower),
+        "radius_from": f"zeros of Z of {fit.model.label} that the data determine",
+        "model_err_against": (f"the full transform of {fit.model.label} and its errors"
+                              if reference is not None else "the next non-zero order"),
         "integration": "closed form (cumulant series)", "precision_bits": 0,
         "precision_digits": digits + 10, "nodes": 0,
         "statistical_errors": "linear propagation of the cumulant errors"
         if kappa_err is not None else "none",
-        "notes": list(notes) + ([] if nxt is not None else
-                                ["no higher non-zero cumulant: model_err is empty"]),
+        "notes": list(notes),
     }
     table = ResultTable(rows=rows, model_label=cm.label, volume=volume, info=info)
     info["horizon"] = table.horizon()

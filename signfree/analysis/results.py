@@ -102,6 +102,12 @@ class Row:
             return None
         top = int(mpmath.floor(mpmath.log10(mag)))
         last = top - self.digits + 1
+        if not self.fit_ok and self.resolved:
+            # a value the data reject: kept for inspection with at most the
+            # digits its errors support, and at least three
+            if err > 0:
+                last = max(last, int(mpmath.floor(mpmath.log10(err))))
+            return min(last, top - 2)
         if err >= mag or self.status == "unresolved":
             return None
         if err > 0:
@@ -231,7 +237,7 @@ class ResultTable:
                 "avg_phase_err": error_string(r.stat_err),
                 "delta_f": df,
                 "delta_f_err": dferr,
-                "cancel_orders": f"{r.cancel_orders:.2f}",
+                "cancel_orders": "" if r.cancel_orders is None else f"{r.cancel_orders:.2f}",
                 "quad_err": error_string(r.quad_err),
                 "model_err": error_string(r.model_err),
                 "edge_err": error_string(r.edge_err),
@@ -266,7 +272,8 @@ class ResultTable:
         else:
             reason, stop = "end of scan", None
         out = {"mu": None if last is None else float(last.mu),
-               "cancel_orders": None if last is None else round(last.cancel_orders, 2),
+               "cancel_orders": None if last is None or last.cancel_orders is None
+               else round(last.cancel_orders, 2),
                "reason": reason, "first_lost_mu": stop}
         if last is not None and last.naive_log10_samples is not None:
             out["naive_samples_log10"] = round(last.naive_log10_samples, 1)
@@ -300,7 +307,8 @@ class ResultTable:
             value = rec["avg_phase"] or "(no digit)"
             cols = [rec["mu"], value, rec["avg_phase_imag"] or "", rec["avg_phase_err"] or "-",
                     _sci(r.total_err, 2),
-                    ("%s%s" % (">=" if r.last_digit is None else "", rec["cancel_orders"])),
+                    ("%s%s" % (">=" if r.last_digit is None and rec["cancel_orders"] else "",
+                               rec["cancel_orders"] or "-")),
                     rec["status"]]
             if reference is not None:
                 ref = reference.get(r.mu)

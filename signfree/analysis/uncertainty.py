@@ -38,21 +38,39 @@ METHODS = ("auto", "jackknife", "bootstrap", "covariance", "none")
 def choose_method(density, method="auto", model_label="chebyshev"):
     """The error route for a density: 'auto' takes the jackknife when there
     are at least two replicas, the covariance route when there are per-point
-    errors (Chebyshev models only), and none otherwise."""
+    errors or counts, and none otherwise. For the piecewise model the
+    covariance route propagates the errors by Monte Carlo draws
+    (:func:`perturbed_values`)."""
     n_rep = len(density.replica_labels)
     if method != "auto":
         if method in ("jackknife", "bootstrap") and n_rep < 2:
             raise ValueError(f"--errors {method} needs at least 2 replicas; "
                              f"{density.source} has {max(n_rep, 1)}")
-        if method == "covariance" and not model_label.startswith("chebyshev"):
-            raise ValueError("--errors covariance applies to the Chebyshev model only")
+        if method == "covariance" and density.error is None and density.kind != "histogram":
+            raise ValueError(f"--errors covariance needs per-point errors; {density.source} "
+                             "has none")
         return method
     if n_rep >= 2:
         return "jackknife"
-    if model_label.startswith("chebyshev") and (density.error is not None
-                                                 or density.kind == "histogram"):
+    if density.error is not None or density.kind == "histogram":
         return "covariance"
     return "none"
+
+
+PIECEWISE_DRAWS = 64
+
+
+def perturbed_values(density, draws=PIECEWISE_DRAWS, seed=0):
+    """(values, None) of ``draws`` Monte Carlo copies of the data: each value
+    moved by a normal deviate of its stated error, or each count drawn anew
+    from a Poisson law with the measured count as its mean (the propagation
+    of the errors of a model that is not linear in the data; common
+    practice)."""
+    rng = np.random.default_rng(seed)
+    if density.kind == "histogram":
+        return [(rng.poisson(density.value).astype(float), None) for _ in range(draws)]
+    return [(density.value + rng.normal(0, 1, len(density.value)) * density.error, None)
+            for _ in range(draws)]
 
 
 def student_factor(nu):
@@ -80,6 +98,8 @@ def coverage_factor(method, n_replicas, nu_errors=None):
         return np.sqrt(R / (R - 1)) * student_factor(R - 1)
     if method == "covariance":
         return student_factor(nu_errors)
+    if method == "draws":
+        return student_factor(PIECEWISE_DRAWS - 1)
     return 1.0
 
 

@@ -65,7 +65,10 @@ EDGE_FRACTION = mpmath.mpf("0.1")  # edge shift, relative to the zero spacing, t
 
 @dataclass(frozen=True)
 class Zero:
-    """One zero (or cluster) of Z(mu): re + i im, error estimate, multiplicity."""
+    """One zero (or cluster) of Z(mu): re + i im, the numerical error of its
+    refinement ``err``, multiplicity; and, once assessed against the data
+    (:mod:`signfree.analysis.zero_errors`), its statistical, model and
+    structure errors and whether the data determine it (``stable``)."""
 
     re: mpmath.mpf
     im: mpmath.mpf
@@ -73,6 +76,17 @@ class Zero:
     multiplicity: int = 1
     converged: bool = True
     edge_shift: mpmath.mpf = None
+    stat_err: mpmath.mpf = None
+    model_err: mpmath.mpf = None
+    structure_err: mpmath.mpf = None
+    tracked: bool = True
+    stable: bool = None
+
+    @property
+    def total_err(self):
+        """err + 3 stat + model + structure (the errors known)."""
+        return (self.err + 3 * (self.stat_err or 0) + (self.model_err or 0)
+                + (self.structure_err if self.structure_err is not None else 0))
 
     @property
     def edge_limited(self):
@@ -102,6 +116,7 @@ class ZeroResult:
     radius_lower_bound  the series converges at least out to this |mu|: the
                 radius if the disc lies in the box, else the distance from 0
                 to the box boundary when 0 is inside (None otherwise)
+    box_reach   the distance from 0 to the box boundary when 0 lies inside
     note        set when the box does not contain the disc |mu| < radius
     """
 
@@ -116,18 +131,26 @@ class ZeroResult:
     digits: int = 12
     evaluations: int = 0
     seconds: float = 0.0
+    box_reach: mpmath.mpf = None
 
-    COLUMNS = ("re", "im", "err", "multiplicity", "edge_shift")
+    COLUMNS = ("re", "im", "err", "stat_err", "model_err", "structure_err", "total_err",
+               "multiplicity", "edge_shift", "status")
 
     def records(self):
-        return [{"re": _with_err(z.re, z.err, self.digits),
-                 "im": _with_err(z.im, z.err, self.digits),
-                 "err": _sci(z.err, 2), "multiplicity": str(z.multiplicity),
-                 "edge_shift": "" if z.edge_shift is None else _sci(z.edge_shift, 2)}
+        def e(x):
+            return "" if x is None else _sci(x, 2)
+        return [{"re": _with_err(z.re, z.total_err, self.digits, z.stable is False),
+                 "im": _with_err(z.im, z.total_err, self.digits, z.stable is False),
+                 "err": _sci(z.err, 2), "stat_err": e(z.stat_err), "model_err": e(z.model_err),
+                 "structure_err": e(z.structure_err), "total_err": e(z.total_err),
+                 "multiplicity": str(z.multiplicity),
+                 "edge_shift": "" if z.edge_shift is None else _sci(z.edge_shift, 2),
+                 "status": {True: "stable", False: "unresolved", None: "not assessed"}[z.stable]}
                 for z in self.zeros]
 
     def summary(self):
         return {"count": self.count, "found": sum(z.multiplicity for z in self.zeros),
+                "stable": sum(1 for z in self.zeros if z.stable),
                 "radius": None if self.radius is None else _sci(self.radius, self.digits),
                 "radius_lower_bound": None if self.radius_lower_bound is None
                 else _sci(self.radius_lower_bound, 6),
@@ -135,9 +158,9 @@ class ZeroResult:
                 "box": [str(float(v)) for v in self.box], "digits": self.digits}
 
     def text(self):
-        head = ["re", "im", "err", "mult", "edge shift"]
-        rows = [[r["re"], r["im"], r["err"], r["multiplicity"], r["edge_shift"]]
-                for r in self.records()]
+        head = ["re", "im", "total err", "stat", "model", "structure", "mult", "status"]
+        rows = [[r["re"], r["im"], r["total_err"], r["stat_err"], r["model_err"],
+                 r["structure_err"], r["multiplicity"], r["status"]] for r in self.records()]
         lines = []
         if rows:
             widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
@@ -149,7 +172,8 @@ class ZeroResult:
         lines.append(f"box re [{float(b[0]):g}, {float(b[1]):g}], im [{float(b[2]):g}, "
                      f"{float(b[3]):g}]: {self.count} zero(s) by the argument principle")
         if self.radius is not None:
-            lines.append(f"convergence radius of the cumulant series: {_sci(self.radius, 8)}")
+            lines.append(f"convergence radius of the cumulant series: {_sci(self.radius, 8)} "
+                         "(from the nearest zero the data determine)")
         elif self.radius_lower_bound is not None:
             lines.append("convergence radius of the cumulant series: at least "
                          f"{_sci(self.radius_lower_bound, 6)}")
@@ -164,9 +188,12 @@ def _sci(x, nsig):
     return s
 
 
-def _with_err(x, err, digits):
+def _with_err(x, err, digits, candidate=False):
     """x with the digits that err supports (at most ``digits``); '0' when
-    |x| lies below the error."""
+    |x| lies below the error. A ``candidate`` (a zero the data do not
+    determine) is shown with three digits, to say where the model has it."""
+    if candidate:
+        return _sci(x, 3)
     if abs(x) <= err:
         return "0"
     top = int(mpmath.floor(mpmath.log10(abs(x))))
@@ -450,7 +477,7 @@ def find_zeros(model, box, digits=12):
                       radius_lower_bound=lower, note=note, notes=notes,
                       model=getattr(model, "label", ""), digits=digits,
                       evaluations=search.ev.evaluations,
-                      seconds=time.perf_counter() - start)
+                      seconds=time.perf_counter() - start, box_reach=to_edge)
 
 
 def count_zeros(model, box, digits=12):

@@ -4,7 +4,7 @@ import sys
 from datetime import datetime, timezone
 from pathlib import Path
 
-from signfree.analysis.zeros import ContourError, ZeroResult, find_zeros, parse_box
+from signfree.analysis.zeros import ContourError, ZeroResult, parse_box
 from signfree.cli.options import add_input_options
 
 HELP = 'zeros of Z(mu) in a box of the complex mu plane'
@@ -31,7 +31,7 @@ def zeros_files(args):
     """Read, fit, search and prepare zeros.csv and summary.json; raises
     InputError or ValueError on bad input before anything is written."""
     from signfree.analysis.settings import check_digits
-    from signfree.models.chebyshev import fit_chebyshev
+    from signfree.analysis.zero_errors import zeros_of
     from signfree.io.writing import csv_text, file_sha256, json_text, package_versions
     from signfree.io.samples import load
 
@@ -40,9 +40,8 @@ def zeros_files(args):
     density, samples, sample_notes = load(args.input, kind=getattr(args, "kind", None),
                                           symmetry=getattr(args, "symmetry", None))
     data = samples if samples is not None else density
-    fit = fit_chebyshev(density, degree=getattr(args, "degree", None),
-                        parity=getattr(args, "symmetry", None))
-    result = find_zeros(fit.model, box, digits=digits)
+    fit, result = zeros_of(density, box, degree=getattr(args, "degree", None),
+                           parity=getattr(args, "symmetry", None), digits=digits)
     result.notes[:0] = sample_notes
     summary = {
         "input": {"file": str(args.input), "sha256": file_sha256(args.input),

@@ -94,6 +94,7 @@ class ChebyshevFit:
     correction: np.ndarray = None
     sigma: np.ndarray = None
     sigma_dof: int = None
+    chi2_scale: float = 1.0
 
 
 def _basis(kind, degree, parity):
@@ -362,7 +363,8 @@ def fit_chebyshev(density, degree=None, parity=None, max_degree=MAX_DEGREE):
                         consistent=consistent, parity_test=parity_test,
                         noise_estimated=noise_estimated, notes=tuple(notes),
                         spurious=spurious,
-                        correction=correction, sigma=sigma, sigma_dof=nu)
+                        correction=correction, sigma=sigma, sigma_dof=nu,
+                        chi2_scale=chi2_scale)
 
 
 def _parity(density, parity, sigma, max_degree, chi2_scale, correction):

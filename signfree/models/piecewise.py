@@ -42,7 +42,7 @@ class PiecewiseModel:
             elif density.kind == "histogram":
                 keep = value > 0
                 width = density.width[keep] if density.width is not None else 1.0
-                knots, lnrho = density.q[keep], np.log(value[keep] / width)
+                knots, lnrho = density.q[keep], np.log((value[keep] + 0.5) / width)
             else:
                 knots, lnrho = density.q, value
         lnrho = np.asarray(lnrho, dtype=float)

@@ -85,12 +85,15 @@ def fit_figure(analysis):
     dof = getattr(model, "dof", 0) or 0
     top = float(np.max(model.log_density(qq)))
     legend = {"title": _chi2_text(model, table) or None, "loc": "best"}
+    fit = getattr(analysis, "fit", None)
+    used = getattr(fit, "sigma", None)         # the errors the fit judged (pooled, estimated)
     if density.kind == "slopes":
         from signfree.density import slope_knots
         fig = _new_figure(3.9)
         ax_s, ax_p, ax_r = fig.subplots(3, 1, sharex=True,
                                         gridspec_kw={"height_ratios": [1.25, 1.0, 0.9]})
         q, w, y, e = density.q, density.width, density.value, density.error
+        e = used if used is not None else e
         fitted = (model.log_density(q + w / 2) - model.log_density(q - w / 2)) / w
         ax_s.errorbar(q, y, yerr=e, fmt="o", ms=2, elinewidth=0.6, color=_C["blue"],
                       label="measured", gid="data", zorder=2)
@@ -109,6 +112,10 @@ def fit_figure(analysis):
         fig = _new_figure(3.0)
         ax_p, ax_r = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [1.5, 1.0]})
         q, y, e = density.log_density_points()
+        e = used if used is not None else e
+        correction = getattr(fit, "correction", None)
+        if correction is not None and density.kind == "histogram":
+            y = y - np.asarray(correction)[density.value > 0]    # bin averages -> centres
         m = model.log_density(q)
         weight = np.ones_like(y) if e is None else 1.0 / np.asarray(e) ** 2
         offset = float(np.sum(weight * (y - m)) / np.sum(weight))
