@@ -255,7 +255,7 @@ class ResultTable:
 
     def horizon(self):
         """The largest |mu| of the scan up to which every value stays at least
-        two standard errors (all error sources added) away from zero and is
+        two total errors (all error sources added) away from zero and is
         resolved, with the reason it stops: the largest error source at the
         first row that fails ('noise', 'model', 'edge', 'precision'; 'radius'
         past the convergence radius of a cumulant series), or 'end of scan'."""

@@ -67,6 +67,8 @@ def print_report(result, folder, reference=None, out=sys.stdout):
           f"model {info['model']} parity {info['parity']}{fit}", file=out)
     print(f"integration: {info['integration']}, {info['precision_digits']} digits working "
           f"precision, {info['nodes']} nodes, {result.seconds:.2f} s", file=out)
+    if info.get("misfit"):
+        print(f"MISFIT: {info['misfit']}", file=out)
     for note in info["notes"]:
         print(f"note: {note}", file=out)
     print(table.text(reference), file=out)
@@ -81,7 +83,7 @@ def horizon_line(h):
     """The headline practitioners quote: where the signal is lost, and what
     direct reweighting would cost there."""
     if h["mu"] is None:
-        return (f"horizon: no mu of the scan is resolved two standard errors away from zero "
+        return (f"horizon: no mu of the scan is resolved two total errors away from zero "
                 f"(limited by {h['reason']} at mu = {h['first_lost_mu']:g})")
     text = (f"horizon: signal to mu = {h['mu']:g} ({h['cancel_orders']:.1f} orders cancelled)")
     text += (", end of scan" if h["first_lost_mu"] is None else

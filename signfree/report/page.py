@@ -22,9 +22,14 @@ STATUS_TEXT = {
     "edge_limited": "edge_err is at least 10% of |Z(mu)/Z(0)|, or the errors reach the value "
                     "only when added up and edge_err is the largest: the finite q range of "
                     "the data may hide a contribution comparable to the value.",
-    "noise_limited": "the statistical error avg_phase_err is at least |Z(mu)/Z(0)|, or the "
-                     "errors reach the value only when added up and the statistical error is "
-                     "the largest: the measured data do not determine the value.",
+    "noise_limited": "the statistical error avg_phase_err is at least |Z(mu)/Z(0)|, or a "
+                     "ripple in ln rho that the noise of the data cannot exclude could change "
+                     "the value by as much (model_err), or the errors reach the value only "
+                     "when added up and noise is the largest: the measured data do not "
+                     "determine the value.",
+    "misfit": "no smoothing degree fits the data within their errors (or the fit puts "
+              "weight between the data points where they do not allow it): the value rests "
+              "on a model the data reject and is shown only for inspection.",
     "unresolved": "the wanted digits were not reached within the precision and node limits, "
                   "or quad_err or model_err is at least |Z(mu)/Z(0)| (or is the largest of "
                   "errors that reach it together); cancel_orders is then only a lower bound, "
@@ -36,11 +41,13 @@ ERROR_TEXT = [
      "chosen model: the ball radii of the high-precision arithmetic plus the change when the "
      "Gauss-Legendre rule is refined (a rigorous enclosure with --certify; exact segment "
      "sums for the piecewise model)."),
-    ("model_err", "Smoothing (truncation) error: the largest difference between Z(mu)/Z(0) "
-     "of the chosen model and of its neighbours (the next Chebyshev degrees, or the "
+    ("model_err", "What the smoothing may get wrong: the larger of the structure bound (what a "
+     "ripple in ln rho below the noise of the data could change) and the largest difference "
+     "between Z(mu)/Z(0) of the chosen model and of its neighbours (the next Chebyshev "
+     "degrees, or the "
      "piecewise reconstruction at half the resolution)."),
-    ("edge_err", "What the finite q range of the data can hide: the endpoint terms "
-     "rho(b) / |d ln rho/dq(b) + i mu| at both ends, relative to Z(0)."),
+    ("edge_err", "What the finite q range of the data can hide: the tail beyond each end, "
+     "continued from the last stretch of ln rho, at mu and in the normalisation Z(0)."),
     ("avg_phase_err", "Statistical error of Z(mu)/Z(0) from the errors of the measured data, "
      "by the method named under 'statistical errors' above (empty when none is computed)."),
     ("total error", "The sum of all errors that are known, a conservative combination. "
@@ -350,8 +357,9 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
     for key, text in ERROR_TEXT:
         parts.append(f"<dt>{_e(key)}</dt><dd>{_e(text)}</dd>")
     parts.append("</dl><p>Status of each row, in order of precedence "
-                 "(unresolved, noise_limited, edge_limited, ok):</p><dl class=\"terms\">")
-    for status in ("ok", "edge_limited", "noise_limited", "unresolved"):
+                 "(unresolved, misfit, noise_limited, edge_limited, ok):</p>"
+                 "<dl class=\"terms\">")
+    for status in ("ok", "edge_limited", "noise_limited", "misfit", "unresolved"):
         parts.append(f"<dt>{_e(status)}</dt><dd>{_e(STATUS_TEXT[status])} "
                      f"({counts.get(status, 0)} row(s))</dd>")
     parts.append("</dl></section>")

@@ -73,6 +73,7 @@ STYLE = {
 STATUS_MARKS = {
     "edge_limited": {"marker": "s", "color": _C["vermillion"]},
     "noise_limited": {"marker": "D", "color": _C["purple"]},
+    "misfit": {"marker": "v", "color": _C["orange"]},
     "unresolved": {"marker": "X", "color": _C["black"]},
 }
 
@@ -136,7 +137,7 @@ def horizon_text(table):
     if isinstance(h, dict):
         lost, reason = h.get("first_lost_mu"), h.get("reason")
         if found is None:
-            text = "horizon: no mu of the scan is resolved two standard errors away from zero"
+            text = "horizon: no mu of the scan is resolved two total errors away from zero"
         else:
             text = f"horizon: signal up to mu = {found[0]:g}"
             if found[1] is not None:
