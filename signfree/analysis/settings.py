@@ -10,7 +10,7 @@ command line fills the fields of the same names.
 from dataclasses import dataclass, fields, replace
 from fractions import Fraction
 
-MODELS = ("chebyshev", "piecewise", "cumulant")
+MODELS = ("auto", "chebyshev", "rational", "two-component", "piecewise", "cumulant")
 ERROR_METHODS = ("auto", "jackknife", "bootstrap", "covariance", "none")
 PARITIES = ("even", "odd", "none")
 
@@ -19,9 +19,12 @@ PARITIES = ("even", "odd", "none")
 class Settings:
     """The choices of one analysis.
 
-    model     'chebyshev' (default), 'piecewise' or 'cumulant'
+    model     'auto' (default: the Chebyshev series unless the data are
+              two-phase or it fits at no degree, then the best of Chebyshev,
+              rational and two-component; analysis.model_choice), 'chebyshev',
+              'rational', 'two-component', 'piecewise' or 'cumulant'
     degree    Chebyshev degree: None (chosen from the errors), an integer, or
-              'per-mu'
+              'per-mu' (with model 'auto' a degree means the Chebyshev model)
     digits    significant digits wanted (1 to 1000)
     certify   rigorous acb.integral enclosures instead of the refinement check
     volume    V for Delta f = -ln|Z/Z0| / V (None: the density's own)
@@ -33,7 +36,7 @@ class Settings:
     order     highest order of the cumulant expansion
     """
 
-    model: str = "chebyshev"
+    model: str = "auto"
     degree: object = None
     digits: int = 12
     certify: bool = False
@@ -62,6 +65,9 @@ class Settings:
             raise ValueError(f"--order {self.order}: expected at least 1")
         if not (self.degree is None or self.degree == "per-mu" or isinstance(self.degree, int)):
             raise ValueError(f"--degree {self.degree!r}: expected an integer or 'per-mu'")
+        if self.degree is not None and self.model in ("rational", "two-component"):
+            raise ValueError(f"--degree is a Chebyshev degree; the {self.model} model chooses "
+                             "its order from the errors")
 
     def with_(self, **changes):
         """A copy with some fields changed (checked again)."""

@@ -98,7 +98,7 @@ def coverage_factor(method, n_replicas, nu_errors=None):
         return np.sqrt(R / (R - 1)) * student_factor(R - 1)
     if method == "covariance":
         return student_factor(nu_errors)
-    if method == "draws":
+    if method in ("draws", "parameter-draws"):
         return student_factor(PIECEWISE_DRAWS - 1)
     return 1.0
 
@@ -137,6 +137,8 @@ def resampled_models(density, model, values, correction=None):
         d = dataclasses.replace(density, value=v, replicas=None)
         if isinstance(model, PiecewiseModel):
             out.append(PiecewiseModel.from_density(d))
+        elif hasattr(model, "refit"):         # models not linear in their parameters
+            out.append(model.refit(d, sigma, correction))
         else:
             out.append(fit_degree(d, model.degree, model.parity, sigma=sigma,
                                   correction=correction))
