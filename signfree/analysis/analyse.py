@@ -70,10 +70,11 @@ def _analyse_fixed(density, mus, s):
         method = "draws"
         resamples = uncertainty.resampled_models(density, central,
                                                  uncertainty.perturbed_values(density))
-    elif method == "covariance" and hasattr(fit, "draw_models"):
-        # a model not linear in its parameters: draws from their covariance
-        method = "parameter-draws"
-        resamples = fit.draw_models(uncertainty.PIECEWISE_DRAWS)
+    elif method == "covariance" and hasattr(fit, "sensitivity_models"):
+        # a model not linear in its parameters: central differences along
+        # the principal axes of their covariance, propagated linearly
+        method = "covariance-differences"
+        resamples = fit.sensitivity_models()
     if method in ("jackknife", "bootstrap"):
         if method == "bootstrap" and seed is None:
             seed = int(np.random.SeedSequence().entropy % (1 << 32))
@@ -94,8 +95,10 @@ def _analyse_fixed(density, mus, s):
     K = len(tr.mus)
     n_res = len(resamples)
     rep_rows = tr.values[len(batch):len(batch) + n_res]
-    if resamples:
-        stat = uncertainty.spread_relative("bootstrap" if method.endswith("draws") else method,
+    if method == "covariance-differences":
+        stat = uncertainty.propagate_differences(tr.values[0], rep_rows)
+    elif resamples:
+        stat = uncertainty.spread_relative("bootstrap" if method == "draws" else method,
                                            tr.values[0], rep_rows)
     elif method == "covariance":
         stat = uncertainty.propagate_covariance(tr.values[0], tr.gradient, ks, factor)
@@ -196,7 +199,8 @@ def _structure(density, model, fit, values, mus):
     sigma = fit.sigma if fit is not None else density.error
     if sigma is None:
         return [None] * len(mus)
-    res, keep = budget.residuals(density, model, fit.correction if fit is not None else None)
+    res, keep = budget.residuals(density, model, fit.correction if fit is not None else None,
+                                 sigma if fit is not None else None)
     if fit is None:
         res = np.zeros_like(res)   # the piecewise model passes through its data
     if density.kind == "histogram" and fit is None:
@@ -218,8 +222,9 @@ def _describe_errors(method, density, samples):
         "jackknife": f"delete-one jackknife over {n_rep} replicas, refit and integrated",
         "bootstrap": f"bootstrap, {samples} resamples of {n_rep} replicas, refit and integrated",
         "covariance": "linear propagation of the fit-coefficient covariance through the integral",
-        "parameter-draws": f"{uncertainty.PIECEWISE_DRAWS} draws from the fit-parameter "
-                           "covariance, integrated",
+        "covariance-differences": "linear propagation of the fit-parameter covariance "
+                                  "(central differences of the integral along its principal "
+                                  "axes)",
         "draws": f"the stated errors propagated by {uncertainty.PIECEWISE_DRAWS} Monte Carlo "
                  "draws of the data",
         "none": "none",

@@ -2,8 +2,10 @@
 
 Routes: the Chebyshev smoothing of ln rho at the automatically chosen degree
 and at its two neighbours, the truncated cumulant expansion
-exp(sum_{n <= K} kappa_n (i mu)^n / n!) for K = 2, 4, 6, ..., and the raw
-piecewise-linear reconstruction. Each row carries its own error budget
+exp(sum_{n <= K} kappa_n (i mu)^n / n!) for K = 2, 4, 6, ..., the rational
+model of the slope and the two-component model (where the data show a
+valley), each at its automatic order, and the raw piecewise-linear
+reconstruction. Each row carries its own error budget
 (:mod:`signfree.analysis.results`); two routes agree at a mu when
 |Z_a - Z_b| <= total_err_a + total_err_b, a conservative test since each
 total error is itself a sum of bounds. The cumulant routes also carry the
@@ -179,6 +181,15 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
                            parity=chosen.parity)
         routes[cm.label] = cumulant_rows(cm, mus, reference=chosen_rows, radius=radius,
                                          digits=digits)
+    for name in ("rational", "two-component"):
+        # the models for two-phase data (analysis.model_choice), each at its
+        # own automatic order
+        try:
+            alt = analyse(density, mus, model=name, digits=digits)
+        except ValueError as exc:
+            notes.append(str(exc))
+            continue
+        routes[alt.model.label] = alt.table.rows
     pw = analyse(density, mus, model="piecewise", digits=digits)
     routes["piecewise"] = pw.table.rows
     info = {"cumulants_from": source, "notes": notes,

@@ -38,9 +38,12 @@ def add_analysis_options(p):
                    help="mu values: a comma list (0.1,0.5,1) or start:stop:count")
     p.add_argument("--volume", type=float, help="volume V for delta_f (overrides metadata)")
     add_input_options(p)
-    p.add_argument("--model", choices=MODELS, default="chebyshev",
-                   help="smoothing: Chebyshev series of ln rho (default), the raw piecewise-"
-                        "linear reconstruction, or the cumulant expansion to --order")
+    p.add_argument("--model", choices=MODELS, default="auto",
+                   help="smoothing: auto (default: the Chebyshev series of ln rho, or for "
+                        "two-phase data the best of it, the rational model of the slope and "
+                        "two components by chi2 and AIC), chebyshev, rational, two-component, "
+                        "the raw piecewise-linear reconstruction, or the cumulant expansion "
+                        "to --order")
     p.add_argument("--order", type=int, default=4, metavar="K",
                    help="order of the cumulant expansion (default 4)")
     p.add_argument("--degree", type=_degree, metavar="N|per-mu",

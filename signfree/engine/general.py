@@ -146,14 +146,24 @@ def _profile(form, parts, mus):
 
 def _depths(mags, mus, var):
     """Decimal orders that cancel per mu: from the double-precision
-    estimate where it resolves |Z|, else from the variance (the Gaussian
-    estimate mu^2 var / (2 ln 10), an overestimate for two peaks)."""
+    estimate where it resolves |Z|; beyond, -ln|Z| continued like k mu^2 with
+    the smallest k of the outer half of the resolved mu (a Gaussian envelope
+    through the last resolved values; for two peaks the variance of q would
+    overestimate it by far), and from the variance when nothing past mu = 0
+    is resolved. An estimate only: the ball radii and the refinement check
+    raise precision and nodes where it falls short."""
+    resolved = [(abs(float(m)), z) for m, z in zip(mus, mags) if z > FLOOR and m != 0]
+    k = var / 2
+    if resolved:
+        top = max(m for m, _ in resolved)
+        outer = [-math.log(z) / (m * m) for m, z in resolved if m >= top / 2 and z < 1]
+        k = min(outer) if outer else k
     out = []
     for m, z in zip(mus, mags):
         if z > FLOOR:
             out.append(max(0.0, -math.log10(z)))
         else:
-            out.append(max(12.0, float(m) ** 2 * var / (2 * math.log(10))))
+            out.append(max(-math.log10(FLOOR), k * float(m) ** 2 / math.log(10)))
     return out
 
 

@@ -241,14 +241,20 @@ def choose_order(candidates, density, neighbour_keys):
     return chosen, neighbours, consistent, criterion, spikes(chosen)
 
 
-def draws_from(solution, count, seed, rebuild):
-    """``count`` models with parameters drawn from the fit's linearised
-    covariance, theta + L xi with standard normal xi (a Monte Carlo
-    propagation of the covariance; common practice); ``rebuild(theta)``
-    makes a model from parameters."""
-    rng = np.random.default_rng(seed)
+DIFFERENCE_STEP = 0.1    # of one standard deviation along each principal axis
+
+
+def sensitivity_models(solution, rebuild, step=DIFFERENCE_STEP):
+    """Models at theta +- step L_i for every column L_i of the covariance
+    factor (in that order: plus, minus, per axis). Central differences of
+    Z(mu) between them, divided by 2 step, are its changes per standard
+    deviation along the principal axes, whose squares summed give the
+    linearly propagated variance (common practice; the small step keeps
+    parameters the data hardly fix from leaving the linear regime).
+    ``rebuild(theta)`` makes a model from parameters."""
     L = solution.factor
     out = []
-    for _ in range(count):
-        out.append(rebuild(solution.theta + L @ rng.standard_normal(L.shape[1])))
+    for i in range(L.shape[1]):
+        out.append(rebuild(solution.theta + step * L[:, i]))
+        out.append(rebuild(solution.theta - step * L[:, i]))
     return out

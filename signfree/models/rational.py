@@ -36,8 +36,8 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.polynomial import chebyshev as C
 
-from signfree.models.nonlinear import Candidate, Measured, choose_order, draws_from, \
-    max_parameters, remembered, solve
+from signfree.models.nonlinear import Candidate, Measured, choose_order, \
+    max_parameters, remembered, sensitivity_models, solve
 
 MAX_PAIRS = 6
 MAX_DEGREE = 8
@@ -270,7 +270,11 @@ def aaa_pole_sets(density, sigma, parity="none"):
         inside = (p.real >= a) & (p.real <= b)
         dist = np.where(inside, p.imag, np.abs(p - np.clip(p.real, a, b)))
         sets.append([complex(z) for z in p[np.argsort(dist)]])
-    return sets
+    # poles far from the data (a slope close to a polynomial has none
+    # nearer): a start whose residues the linear solve may leave near zero
+    far = [complex(0.5 * (a + b) + (0.0 if parity == "even" else 0.3 * k * L), (1 + k) * L)
+           for k in range(MAX_PAIRS)]
+    return [s + far for s in sets] + [far]
 
 
 def _distinct(poles, scale):
@@ -303,13 +307,15 @@ class RationalFit:
     sigma_dof: int = None
     chi2_scale: float = 1.0
 
-    def draw_models(self, count, seed=0):
-        """Models drawn from the fit's parameter covariance (for statistical
-        errors without replicas)."""
+    def sensitivity_models(self):
+        """Models one tenth of a standard deviation either side along every
+        principal axis of the parameter covariance, for linear propagation of
+        the statistical errors without replicas
+        (:func:`signfree.models.nonlinear.sensitivity_models`)."""
         form = RationalForm(self.model.domain, self.model.order[1], self.model.order[0],
                             self.model.parity)
-        return draws_from(self.solution, count, seed,
-                          lambda t: form.model(t, self.measured, self.model.chi2, self.model.dof))
+        return sensitivity_models(self.solution,
+                                  lambda t: form.model(t, self.measured, self.model.chi2, self.model.dof))
 
 
 def _fit_orders(density, measured, parity, chi2_scale, pole_sets, max_pairs, max_degree):

@@ -26,8 +26,8 @@ from numpy.polynomial import chebyshev as C
 
 from signfree.density import slope_knots
 from signfree.models.chebyshev import ChebyshevModel
-from signfree.models.nonlinear import Candidate, Measured, choose_order, draws_from, \
-    max_parameters, remembered, solve
+from signfree.models.nonlinear import Candidate, Measured, choose_order, \
+    max_parameters, remembered, sensitivity_models, solve
 
 MAX_DEGREE = 8
 VALLEY_SIGMAS = 5.0     # a valley must be this many errors deep to count
@@ -250,11 +250,14 @@ class TwoComponentFit:
     sigma_dof: int = None
     chi2_scale: float = 1.0
 
-    def draw_models(self, count, seed=0):
-        """Models drawn from the fit's parameter covariance."""
+    def sensitivity_models(self):
+        """Models one tenth of a standard deviation either side along every
+        principal axis of the parameter covariance, for linear propagation of
+        the statistical errors without replicas
+        (:func:`signfree.models.nonlinear.sensitivity_models`)."""
         form = TwoComponentForm(self.model.domain, self.model.order, self.model.parity)
-        return draws_from(self.solution, count, seed,
-                          lambda t: form.model(t, self.model.chi2, self.model.dof))
+        return sensitivity_models(self.solution,
+                                  lambda t: form.model(t, self.model.chi2, self.model.dof))
 
 
 def _candidates(density, measured, valley, parity, chi2_scale, max_degree):
