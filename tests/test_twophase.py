@@ -232,3 +232,55 @@ def test_covariance_route_matches_the_scatter_of_repeated_fits():
         errors.append(float(t.rows[0].stat_err))
     scatter = np.std(np.real(values), ddof=1)
     assert 0.6 < np.mean(errors) / scatter < 1.6
+
+
+# ------------------------------------------------------ the command line
+
+def write_slopes(path, density):
+    """A slopes file with one row per replica and interval."""
+    with open(path, "w") as f:
+        f.write("# kind: slopes\n# volume: 10\nreplica,q,width,slope\n")
+        for r, rep in enumerate(density.replicas, start=1):
+            for q, w, v in zip(density.q, density.width, rep):
+                f.write(f"{r},{float(q)!r},{float(w)!r},{float(v)!r}\n")
+    return path
+
+
+def test_command_line_names_two_phase_data_and_the_model_choice(tmp_path, capsys):
+    # slopes of two Gaussians at -+6.5 (valley of 20 nats; exact transform
+    # exp(-mu^2/2) cos(6.5 mu), GR 3.896.4): the printed report marks the
+    # data two-phase and says which model was taken and why; summary.json
+    # holds the evidence and the models tried; the degree column names the
+    # model's order; compare takes the same model as its reference
+    import csv
+    import json
+    from signfree.cli import main
+    case = T.valley(6.5)
+    src = write_slopes(tmp_path / "v.csv",
+                       X.slopes_data(case, -12.5, 12.5, 0.25, 1e-2, replicas=6, seed=1))
+    assert main(["run", str(src), "--mu", "0:1:5", "--out", str(tmp_path / "out")]) == 0
+    out = capsys.readouterr().out
+    assert "[two-phase data]" in out and "model choice: two-component:" in out
+    summary = json.loads((tmp_path / "out" / "summary.json").read_text())
+    assert summary["two_phase"]["detected"] and abs(summary["two_phase"]["depth_nats"] - 20.4) < 1
+    choice = summary["model_choice"]
+    assert choice["chosen"] == summary["model"] and choice["asked"] == "auto"
+    assert {c["model"].split(":")[0] for c in choice["candidates"]} == \
+        {"chebyshev", "rational", "two-component"}
+    with open(tmp_path / "out" / "results.csv") as f:
+        rows = list(csv.DictReader(f))
+    assert rows[0]["degree"] == summary["model"].split(":")[1]
+    for row in rows:
+        mu = float(row["mu"])
+        exact = np.exp(-mu * mu / 2) * np.cos(6.5 * mu)
+        assert row["status"] == "ok" and abs(float(row["avg_phase"]) - exact) < 0.01
+    # a degree is a Chebyshev degree: refused for the other models
+    assert main(["run", str(src), "--mu", "0:1:5", "--model", "rational", "--degree", "4",
+                 "--out", str(tmp_path / "bad")]) == 2
+    assert "Chebyshev degree" in capsys.readouterr().err
+    assert not (tmp_path / "bad").exists()
+    from signfree.analysis.compare import compare
+    from signfree.io.reading import read_density
+    res = compare(read_density(str(src)), [Fraction(1, 5)], digits=10)
+    assert res.reference == summary["model"]
+    assert any(label.startswith("rational:") for label in res.routes)

@@ -35,6 +35,30 @@ def valley_depth(case, q):
     return float(np.max(np.minimum(left, right) - v))
 
 
+def sech_pair(parts):
+    """rho = sum_i w_i sech((q - c_i) / s_i) / (pi s_i): two peaks with
+    exponential tails, whose ln rho is not a polynomial either within a
+    component or as a whole. Int sech(q / s) exp(i mu q) dq =
+    pi s sech(pi s mu / 2) (Gradshteyn & Ryzhik 3.981.3), term by term."""
+    total = sum(w for w, _, _ in parts)
+
+    def log_rho(q):
+        q = np.asarray(q, dtype=float)
+        terms = []
+        for w, c, s in parts:
+            x = np.abs((q - c) / s)
+            terms.append(np.log(w / (np.pi * s)) + np.log(2.0) - x - np.log1p(np.exp(-2 * x)))
+        return np.logaddexp.reduce(terms, axis=0)
+
+    def exact(mu):
+        return sum(mpmath.mpf(w) / total * mpmath.exp(1j * mu * c) * mpmath.sech(mpmath.pi * s * mu / 2)
+                   for w, c, s in parts)
+
+    centre = sum(w * c for w, c, _ in parts) / total
+    return X.Case(f"sech_pair{parts}", log_rho, exact, centre,
+                  max(abs(c - centre) for _, c, _ in parts) + max(s for _, _, s in parts))
+
+
 def double_well(V, a=1.0):
     """rho = exp(V (a x^2 - x^4)), x = q / V, with certified references."""
     x0 = math.sqrt(a / 2)

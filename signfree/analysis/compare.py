@@ -38,8 +38,9 @@ COLUMNS = ("mu", "model", "avg_phase", "avg_phase_imag", "avg_phase_err", "total
 @dataclass
 class Comparison:
     """Rows per route (label -> list of rows over mu, in the order of
-    ``mus``), the reference route (the chosen Chebyshev model) and what the
-    comparison rests on."""
+    ``mus``), the reference route (the model --model auto takes: the chosen
+    Chebyshev degree, or for two-phase data the rational or two-component
+    model) and what the comparison rests on."""
 
     mus: list
     routes: dict
@@ -181,9 +182,14 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
                            parity=chosen.parity)
         routes[cm.label] = cumulant_rows(cm, mus, reference=chosen_rows, radius=radius,
                                          digits=digits)
+    auto = analyse(density, mus, digits=digits)       # the model --model auto takes
     for name in ("rational", "two-component"):
         # the models for two-phase data (analysis.model_choice), each at its
-        # own automatic order
+        # own automatic order; the reference when --model auto takes one
+        if auto.model.label.startswith(name + ":"):
+            routes[auto.model.label] = auto.table.rows
+            reference = auto.model.label
+            continue
         try:
             alt = analyse(density, mus, model=name, digits=digits)
         except ValueError as exc:

@@ -67,6 +67,15 @@ class Measured:
             return value + theta[-1], None
         return value + theta[-1], np.hstack([jac, np.ones((len(value), 1))])
 
+    def design(self, columns):
+        """The columns of a model linear in its parameters, ``columns(q)``
+        in ln rho, turned into the measured quantity (the free constant's
+        column appended for ln rho data)."""
+        low = columns(self.lo)
+        if self.hi is not None:
+            return (columns(self.hi) - low) / self.width[:, None]
+        return np.hstack([low, np.ones((len(low), 1))])
+
     def residuals(self, evaluate, theta):
         return (self.predict(evaluate, theta, False)[0] - self.y) / self.sigma
 
@@ -125,8 +134,8 @@ def solve(measured, evaluate, theta0, chi2_scale=1.0, max_evaluations=None):
         try:
             out = least_squares(lambda t: measured.residuals(evaluate, t), theta0,
                                 jac=lambda t: measured.weighted_jacobian(evaluate, t),
-                                method=method, xtol=1e-10, ftol=1e-10, gtol=1e-10,
-                                max_nfev=max_evaluations or 30 * (len(theta0) + 1))
+                                method=method, xtol=1e-9, ftol=1e-9, gtol=1e-10,
+                                max_nfev=max_evaluations or 20 * (len(theta0) + 1))
         except (ValueError, OverflowError, np.linalg.LinAlgError, FloatingPointError):
             return None
     if not np.all(np.isfinite(out.x)) or not np.all(np.isfinite(out.fun)):

@@ -36,8 +36,8 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.polynomial import chebyshev as C
 
-from signfree.models.nonlinear import Candidate, Measured, choose_order, \
-    max_parameters, remembered, sensitivity_models, solve
+from signfree.models.nonlinear import Candidate, Measured, Solution, choose_order, \
+    covariance_factor, max_parameters, remembered, sensitivity_models
 
 MAX_PAIRS = 6
 MAX_DEGREE = 8
@@ -114,8 +114,7 @@ class RationalModel:
         form = RationalForm(self.domain, self.order[1], self.order[0], self.parity)
         measured = Measured(density, sigma if sigma is not None else density.error,
                             correction)
-        start = measured.start_constant(form.evaluate, self.theta)
-        sol = solve(measured, form.evaluate, start)
+        sol = form.projected_fit(measured, list(self.poles))
         if sol is None:
             return self
         return form.model(sol.theta, measured, sol.chi2, sol.dof)
@@ -196,29 +195,88 @@ class RationalForm:
                              domain=self.domain, parity=self.parity, chi2=chi2, dof=dof,
                              theta=core, order=model.order)
 
-    def linear_start(self, measured, positions):
-        """Core parameters for given pole positions: the polynomial
-        coefficients and residues by weighted linear least squares (the
-        model is linear in them once the poles are fixed)."""
-        core = np.zeros(self.n_core)
-        nk, k = len(self.ks), self.per_pair
-        for j, z in enumerate(positions):
-            core[nk + k * j + k - 1] = math.log(z.imag)
-            if k == 4:
-                core[nk + k * j + 2] = z.real
-        theta = measured.start_constant(self.evaluate, core)
-        _, J = measured.predict(self.evaluate, theta)
-        linear = list(range(nk)) + [nk + k * j + i for j in range(self.pairs)
-                                    for i in ((0,) if k == 2 else (0, 1))]
-        if measured.free_constant:
-            linear.append(len(theta) - 1)
-        A = J[:, linear] / measured.sigma[:, None]
+    def linear_columns(self, q, positions):
+        """ln rho's columns for the parameters it is linear in, at fixed
+        poles: the Chebyshev terms, then per pair alpha (and beta)."""
+        cols = [self._vander(q)]
+        for z in positions:
+            u, y = q - z.real, z.imag
+            lg = np.log(u * u + y * y)
+            if self.per_pair == 2:
+                cols.append(2 * lg[:, None])
+            else:
+                cols.append(np.stack([lg, -2 * np.arctan(u / y)], axis=1))
+        return np.hstack(cols)
+
+    def _linear_solve(self, measured, positions):
+        """(linear parameters, weighted residuals) at fixed poles."""
+        A = measured.design(lambda q: self.linear_columns(q, positions)) / measured.sigma[:, None]
         rhs = measured.y / measured.sigma
         scale = np.sqrt((A * A).sum(axis=0))
         scale[scale == 0] = 1.0
         sol, *_ = np.linalg.lstsq(A / scale, rhs, rcond=None)
-        theta[linear] = sol / scale
+        return sol / scale, A @ (sol / scale) - rhs
+
+    def linear_start(self, measured, positions):
+        """Core parameters (and the constant, for ln rho data) for given pole
+        positions: the polynomial coefficients and residues by weighted
+        linear least squares (the model is linear in them once the poles
+        are fixed)."""
+        sol, _ = self._linear_solve(measured, positions)
+        nk, k = len(self.ks), self.per_pair
+        theta = np.zeros(self.n_core + measured.extra())
+        theta[:nk] = sol[:nk]
+        for j, z in enumerate(positions):
+            base = nk + k * j
+            if k == 2:
+                theta[base], theta[base + 1] = sol[nk + j], math.log(z.imag)
+            else:
+                theta[base:base + 4] = [sol[nk + 2 * j], sol[nk + 2 * j + 1], z.real,
+                                        math.log(z.imag)]
+        if measured.free_constant:
+            theta[-1] = sol[-1]
         return theta
+
+    def projected_fit(self, measured, positions, chi2_scale=1.0):
+        """Weighted least squares by variable projection (Golub & Pereyra,
+        SIAM J. Numer. Anal. 10 (1973) 413): only the pole positions are
+        iterated (Levenberg-Marquardt on them, scipy.optimize.least_squares
+        with difference derivatives); for each, the polynomial coefficients
+        and residues follow by linear least squares. Far poles make their
+        logarithms nearly polynomial, a near-degeneracy the linear solve
+        takes in its stride where a joint iteration crawls. Returns a
+        :class:`~signfree.models.nonlinear.Solution` or None."""
+        from scipy.optimize import least_squares
+        even = self.per_pair == 2
+        start = []
+        for z in positions:
+            start += [math.log(z.imag)] if even else [z.real, math.log(z.imag)]
+
+        def places(v):
+            v = np.clip(v, -30.0, 30.0) if even else v
+            if even:
+                return [complex(0.0, math.exp(t)) for t in np.clip(v, -30, 30)]
+            return [complex(v[2 * j], math.exp(min(max(v[2 * j + 1], -30.0), 30.0)))
+                    for j in range(self.pairs)]
+
+        def resid(v):
+            r = self._linear_solve(measured, places(v))[1]
+            return r if np.all(np.isfinite(r)) else np.full_like(r, 1e150)
+
+        with warnings.catch_warnings(), np.errstate(all="ignore"):
+            warnings.simplefilter("ignore")
+            try:
+                out = least_squares(resid, np.array(start), method="trf", x_scale=1.0,
+                                    xtol=1e-10, ftol=1e-10, max_nfev=60 * (len(start) + 1))
+            except (ValueError, OverflowError, np.linalg.LinAlgError):
+                return None
+        theta = self.linear_start(measured, places(out.x))
+        r = measured.residuals(self.evaluate, theta)
+        if not np.all(np.isfinite(r)):
+            return None
+        J = measured.weighted_jacobian(self.evaluate, theta)
+        return Solution(theta=theta, chi2=float(r @ r) * chi2_scale, dof=measured.n - len(theta),
+                        factor=covariance_factor(J), converged=out.status > 0)
 
 
 def slope_points(density, sigma):
@@ -277,11 +335,15 @@ def aaa_pole_sets(density, sigma, parity="none"):
     return [s + far for s in sets] + [far]
 
 
-def _distinct(poles, scale):
+def _distinct_starts(starts, tol):
+    """Pole sets that differ: two sets whose poles, sorted, lie within tol
+    of each other start the same fit."""
     out = []
-    for z in poles:
-        if all(abs(z - w) > 1e-3 * scale for w in out):
-            out.append(z)
+    for s in starts:
+        key = sorted(s, key=lambda z: (z.imag, z.real))
+        if not any(len(key) == len(o) and all(abs(u - v) <= tol for u, v in zip(key, o))
+                   for o in out):
+            out.append(key)
     return out
 
 
@@ -344,20 +406,16 @@ def _fit_orders(density, measured, parity, chi2_scale, pole_sets, max_pairs, max
                     if extra:
                         starts.append(prev + extra[:1])
                         break
-            starts = [s for s in {tuple(np.round(s, 9)): s for s in starts}.values()]
-            thetas = [form.linear_start(measured, s) for s in starts]
+            starts = _distinct_starts(starts, 0.02 * (b - a))
         else:
             below = run(m, d - step)
             if below is None:
                 solved[(m, d)] = None
                 return None
-            old = below[0].theta
-            nk_old = len(RationalForm(density.domain, d - step, m, parity).ks)
-            core = np.concatenate([old[:nk_old], [0.0], old[nk_old:]])
-            thetas = [measured.start_constant(form.evaluate, core)]
+            starts = [list(below[0].poles)]
         best = None
-        for theta in thetas:
-            sol = solve(measured, form.evaluate, theta, chi2_scale)
+        for positions in starts:
+            sol = form.projected_fit(measured, positions, chi2_scale)
             if sol is not None and (best is None or sol.chi2 < best.chi2):
                 best = sol
         if best is None:

@@ -29,7 +29,7 @@ from signfree.models.chebyshev import ChebyshevModel
 from signfree.models.nonlinear import Candidate, Measured, choose_order, \
     max_parameters, remembered, sensitivity_models, solve
 
-MAX_DEGREE = 8
+MAX_DEGREE = 6          # per component: a smooth single peak needs no more
 VALLEY_SIGMAS = 5.0     # a valley must be this many errors deep to count
 VALLEY_NATS = 0.5       # and at least this deep in ln rho
 
