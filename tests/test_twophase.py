@@ -161,18 +161,24 @@ def test_double_well_against_certified_references():
         assert X.violations(t, dw) == []
 
 
-def test_double_well_samples_where_the_chebyshev_degrees_disagree():
-    # 4e5 samples of the double well: the valley bins are nearly empty;
-    # the Chebyshev degrees disagree by more than the value near the first
-    # zeros (unresolved), the automatic choice resolves them
+def test_double_well_samples_keep_the_polynomial_and_stay_honest():
+    # 4e5 samples of the double well, binned as a samples file is: the valley
+    # bins are empty, and their Poisson deviance keeps the flexible models
+    # from putting weight there (McCullagh & Nelder 1989, 2.3). Where the
+    # quartic fits (chi^2 passes) the automatic choice keeps it and every
+    # row is ok; for every data set and model, no ok row misses the
+    # certified reference (acb.integral).
     dw = T.double_well(100.0)
     mus = scan(0.3)
-    d = T.sampled(dw, -125, 125, 400000, seed=0)
-    cheb = analyse(d, mus, digits=10, model="chebyshev").table
-    auto = analyse(d, mus, digits=10).table
-    for t in (cheb, auto):
-        assert X.violations(t, dw) == []
-    assert auto.status_counts()["ok"] >= cheb.status_counts()["ok"] + 5
+    for seed in (0, 1, 2):
+        d = T.sampled(dw, -125, 125, 400000, seed=seed)
+        auto = analyse(d, mus, digits=10).table
+        assert X.violations(auto, dw) == []
+        if auto.info["model"] == "chebyshev:4":
+            assert auto.status_counts()["ok"] == len(mus)
+        two = analyse(d, mus, digits=10, model="two-component").table
+        assert X.violations(two, dw) == []
+    assert auto.info["model"] == "chebyshev:4"
 
 
 # ------------------------------------------------------ choice and errors

@@ -75,14 +75,23 @@ def two_phase(density, base):
     return out
 
 
-def _summary(fit, n):
+def _summary(fit, n, density):
+    """chi^2, parameters, AIC and the verdict of one fit. Every model is
+    judged with the same chi^2: the Chebyshev fit (linear in ln rho) leaves
+    empty histogram bins out, so their Poisson deviance is added here as the
+    nonlinear fits include it (:class:`signfree.models.nonlinear.Measured`)."""
+    from signfree.models.nonlinear import Measured
     m = fit.model
     k = n - m.dof
-    p = chi2_sf(m.chi2, m.dof)
+    chi2 = m.chi2
+    if getattr(fit, "solution", None) is None and fit.sigma is not None \
+            and density.kind == "histogram":
+        chi2 += Measured(density, fit.sigma, fit.correction).empty_deviance(m)
+    p = chi2_sf(chi2, m.dof)
     passes = bool((fit.consistent or fit.noise_estimated) and fit.spurious <= SPIKE_LIMIT
                   and (p >= P_ACCEPT or fit.noise_estimated))
-    return {"model": m.label, "chi2_per_dof": m.chi2 / max(m.dof, 1), "parameters": int(k),
-            "aic": float(m.chi2 + 2 * k), "p": float(p), "passes": passes}
+    return {"model": m.label, "chi2_per_dof": chi2 / max(m.dof, 1), "parameters": int(k),
+            "aic": float(chi2 + 2 * k), "p": float(p), "passes": passes}
 
 
 def _n_fit(density):
@@ -129,14 +138,14 @@ def smoothing(density, model="auto", degree=None, parity=None):
                          "model was asked for: --model auto also tries the rational and "
                          "two-component models")
         choice = {"asked": "chebyshev", "chosen": base.model.label, "reason": "asked for",
-                  "candidates": [_summary(base, n)]}
+                  "candidates": [_summary(base, n, density)]}
         return base.model, list(base.next_models), base, _info(phase, choice, notes)
     if model in ("rational", "two-component"):
         fit = _alternatives(density, base, parity, phase, [model])[model]
         if isinstance(fit, str):
             raise ValueError(f"--model {model}: {fit} ({density.source})")
         choice = {"asked": model, "chosen": fit.model.label, "reason": "asked for",
-                  "candidates": [_summary(fit, n)]}
+                  "candidates": [_summary(fit, n, density)]}
         if phase["detected"]:
             notes.append("two-phase data (" + "; ".join(phase["evidence"]) + ")")
         return fit.model, list(fit.next_models), fit, _info(phase, choice, notes)
@@ -151,7 +160,7 @@ def smoothing(density, model="auto", degree=None, parity=None):
                 failed[name] = fit
             else:
                 fits[name] = fit
-    summaries = {name: _summary(fit, n) for name, fit in fits.items()}
+    summaries = {name: _summary(fit, n, density) for name, fit in fits.items()}
     passing = [name for name in fits if summaries[name]["passes"]]
     pool = passing or list(fits)
     chosen = min(pool, key=lambda name: summaries[name]["aic"])

@@ -28,10 +28,24 @@ PATIENCE = 8            # candidates tried past the last fall of AIC when none p
 class Measured:
     """The data as they are fitted, with the errors ``sigma`` that weight
     them; ``correction`` turns histogram bin averages into values of ln rho
-    at the bin centres (:func:`signfree.models.shape.bin_correction`)."""
+    at the bin centres (:func:`signfree.models.shape.bin_correction`).
+
+    Empty histogram bins have no logarithm, but they say that the model may
+    not expect counts there: each adds its Poisson deviance for a count of
+    0, 2 lambda (lambda = width exp(ln rho + C + correction), the counts the
+    model expects in it), to chi^2, as the residual sqrt(2 lambda) (the
+    deviance of a Poisson fit; McCullagh & Nelder, Generalized Linear
+    Models, 1989, 2.3). Without it a flexible model may put weight where no
+    sample fell. The degrees of freedom count the filled bins only."""
 
     def __init__(self, density, sigma, correction=None):
         self.kind = density.kind
+        self.empty = None
+        if density.kind == "histogram" and np.any(density.value <= 0):
+            gone = density.value <= 0
+            width = density.width if density.width is not None else np.ones(density.n_points)
+            corr = np.asarray(correction)[gone] if correction is not None else 0.0
+            self.empty = (density.q[gone], np.log(width[gone]) + corr)
         if density.kind == "slopes":
             self.lo = density.q - density.width / 2
             self.hi = density.q + density.width / 2
@@ -76,11 +90,37 @@ class Measured:
             return (columns(self.hi) - low) / self.width[:, None]
         return np.hstack([low, np.ones((len(low), 1))])
 
+    def _empty_terms(self, evaluate, theta, jacobian):
+        """sqrt(2 lambda) per empty bin and its Jacobian (or None)."""
+        q, offset = self.empty
+        value, jac = evaluate(q, theta[:len(theta) - 1], jacobian)
+        r = np.sqrt(2.0) * np.exp(np.minimum(0.5 * (value + theta[-1] + offset), 300.0))
+        if not jacobian:
+            return r, None
+        return r, 0.5 * r[:, None] * np.hstack([jac, np.ones((len(q), 1))])
+
     def residuals(self, evaluate, theta):
-        return (self.predict(evaluate, theta, False)[0] - self.y) / self.sigma
+        r = (self.predict(evaluate, theta, False)[0] - self.y) / self.sigma
+        if self.empty is None:
+            return r
+        return np.concatenate([r, self._empty_terms(evaluate, theta, False)[0]])
 
     def weighted_jacobian(self, evaluate, theta):
-        return self.predict(evaluate, theta)[1] / self.sigma[:, None]
+        J = self.predict(evaluate, theta)[1] / self.sigma[:, None]
+        if self.empty is None:
+            return J
+        return np.vstack([J, self._empty_terms(evaluate, theta, True)[1]])
+
+    def empty_deviance(self, model):
+        """The Poisson deviance of the empty bins, sum 2 lambda, for any
+        model of ln rho (its constant matched to the filled bins by their
+        weighted mean offset); 0 without empty bins."""
+        if self.empty is None:
+            return 0.0
+        w = 1 / self.sigma ** 2
+        c = float(np.sum(w * (self.y - model.log_density(self.lo))) / np.sum(w))
+        q, offset = self.empty
+        return float(np.sum(2 * np.exp(np.minimum(model.log_density(q) + c + offset, 700.0))))
 
     def start_constant(self, evaluate, core):
         """The free constant that best matches the data for given core

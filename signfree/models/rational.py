@@ -37,7 +37,7 @@ import numpy as np
 from numpy.polynomial import chebyshev as C
 
 from signfree.models.nonlinear import Candidate, Measured, Solution, choose_order, \
-    covariance_factor, max_parameters, remembered, sensitivity_models
+    covariance_factor, max_parameters, remembered, sensitivity_models, solve
 
 MAX_PAIRS = 6
 MAX_DEGREE = 8
@@ -271,6 +271,11 @@ class RationalForm:
             except (ValueError, OverflowError, np.linalg.LinAlgError):
                 return None
         theta = self.linear_start(measured, places(out.x))
+        if measured.empty is not None:
+            # empty bins enter chi^2 nonlinearly: a joint polish takes them in
+            polished = solve(measured, self.evaluate, theta, chi2_scale)
+            if polished is not None:
+                return polished
         r = measured.residuals(self.evaluate, theta)
         if not np.all(np.isfinite(r)):
             return None
