@@ -31,7 +31,7 @@ import math
 import mpmath
 import numpy as np
 from numpy.polynomial import chebyshev as C
-from flint import acb, acb_mat, arb, arb_mat, ctx
+from flint import acb, arb, arb_mat, ctx
 
 from signfree.engine.balls import (MAX_NODES, MAX_PREC, abs_mid, arb_of, as_fractions,
                                    difference, exp_i, precision_bits, relative_radius, to_mpf,

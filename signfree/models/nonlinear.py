@@ -246,8 +246,9 @@ def choose_order(candidates, density, neighbour_keys):
     (:func:`signfree.models.shape.spurious_weight`); if none is, the minimum
     of AIC among the shapely candidates tried, flagged as inconsistent (the
     search stops when AIC has not fallen for PATIENCE candidates). Returns
-    (chosen candidate, neighbour candidates that could be fitted, consistent,
-    criterion, spurious fraction and excess of the chosen)."""
+    (chosen candidate, the first two of ``neighbour_keys(key)`` that could be
+    fitted, consistent, criterion, spurious fraction and excess of the
+    chosen)."""
     ordered = sorted(candidates, key=lambda c: (c.n_params, c.key))
     by_key = {c.key: c for c in ordered}
     shape = {}
@@ -285,7 +286,7 @@ def choose_order(candidates, density, neighbour_keys):
     neighbours = []
     for key in neighbour_keys(chosen.key):
         c = by_key.get(key)
-        if c is not None and c.get() is not None:
+        if c is not None and c.get() is not None and len(neighbours) < 2:
             neighbours.append(c)
     return chosen, neighbours, consistent, criterion, spikes(chosen)
 

@@ -20,14 +20,14 @@ ATAP ch. 8), a rational function of the slope does not.
 Fit: AAA (Nakatsukasa, Sete & Trefethen, SIAM J. Sci. Comput. 40 (2018)
 A1494; scipy.interpolate.AAA) on the measured slopes (or differences of
 ln rho) proposes pole positions; with the poles fixed the model is linear
-in the polynomial coefficients and the residues (a weighted linear least
-squares gives them), then all parameters are refined together by weighted
-nonlinear least squares with the stated errors
-(:mod:`signfree.models.nonlinear`). The order (pole pairs m, polynomial
-degree d) is the one with the fewest parameters whose chi^2 passes,
-P(chi^2) >= 0.05, as for the Chebyshev fit; the neighbouring orders
-(m, d + 1) and (m + 1, d) give the model error. With even parity every pole
-comes with its mirror image -conj(z_j) (residue conj(a_j)) and P is even.
+in the polynomial coefficients and the residues, which weighted linear
+least squares gives, so the poles are refined by variable projection with
+the stated errors (:meth:`RationalForm.projected_fit`;
+:mod:`signfree.models.nonlinear` for the data and the order choice). The
+order (pole pairs m, polynomial degree d) is the one with the fewest
+parameters whose chi^2 passes, P(chi^2) >= 0.05, as for the Chebyshev fit;
+the neighbouring orders (m, d + 1) and (m + 1, d) give the model error.
+With even parity the poles lie on the imaginary axis and P is even.
 """
 import math
 import warnings
@@ -48,8 +48,8 @@ AAA_TERMS = (4, 6, 8, 12, 16, 24)
 class RationalModel:
     """ln rho = P(x) + sum over pole pairs (module docstring); an immutable
     value defined exactly by its double-precision parameters (the engine
-    evaluates it in ball arithmetic). ``poles`` lie in the upper half plane;
-    with even parity they include the mirror images."""
+    evaluates it in ball arithmetic). ``poles`` lie in the upper half
+    plane."""
 
     coef: np.ndarray
     poles: tuple
@@ -70,11 +70,6 @@ class RationalModel:
     @property
     def label(self):
         return f"rational:{self.degree}"
-
-    @property
-    def singularities(self):
-        """Where the integrand exp(ln rho + i mu q) stops being analytic."""
-        return tuple(self.poles) + tuple(np.conj(self.poles))
 
     def window(self, q):
         a, b = self.domain
@@ -97,17 +92,6 @@ class RationalModel:
             out = out + 2 * np.real(r / (q - z))
         return out
 
-    def continued(self, q):
-        """ln rho at complex q (numpy), continued from the real axis with the
-        cuts of the module docstring; equal to :meth:`log_density` on it."""
-        q = np.asarray(q, dtype=complex)
-        out = C.chebval(self.window(q), self.coef).astype(complex)
-        for z, r in zip(self.poles, self.residues):
-            up = np.log(1j * (q - z)) - 0.5j * np.pi
-            down = np.log(-1j * (q - np.conj(z))) + 0.5j * np.pi
-            out = out + r * up + np.conj(r) * down - np.pi * r.imag
-        return out
-
     def refit(self, density, sigma=None, correction=None):
         """The same recipe on other data (a resample of the replicas): the
         same order, started from this model's parameters."""
@@ -116,7 +100,10 @@ class RationalModel:
                             correction)
         sol = form.projected_fit(measured, list(self.poles))
         if sol is None:
-            return self
+            sol = solve(measured, form.evaluate, measured.start_constant(form.evaluate,
+                                                                         self.theta))
+        if sol is None:
+            raise ValueError(f"{self.label}: a resample of the data could not be refitted")
         return form.model(sol.theta, measured, sol.chi2, sol.dof)
 
 
@@ -464,6 +451,7 @@ def fit_rational(density, base=None, parity=None, max_pairs=MAX_PAIRS, max_degre
         base = fit_chebyshev(density, parity=parity)
     parity = parity or density.symmetry or base.model.parity
     parity = "even" if parity == "even" else "none"
+    step = 2 if parity == "even" else 1
     sigma = base.sigma
     pole_sets = aaa_pole_sets(density, sigma, parity)
     correction = None        # histograms: the bin correction of this model's own fit
@@ -473,8 +461,8 @@ def fit_rational(density, base=None, parity=None, max_pairs=MAX_PAIRS, max_degre
         cands, _ = _fit_orders(density, measured, parity, base.chi2_scale, pole_sets,
                                max_pairs, max_degree)
         chosen, neighbours, consistent, criterion, (spurious, excess) = choose_order(
-            cands, density, lambda k: [(k[0], k[1] + (2 if parity == "even" else 1)),
-                                       (k[0] + 1, k[1])])
+            cands, density, lambda k: [(k[0], k[1] + step), (k[0] + 1, k[1]),
+                                       (k[0], k[1] - step), (k[0] - 1, k[1])])
         if chosen is None:
             return None
         if density.kind == "histogram":
@@ -487,6 +475,9 @@ def fit_rational(density, base=None, parity=None, max_pairs=MAX_PAIRS, max_degre
     if not neighbours:
         notes.append(f"{model.label}: no neighbouring order could be fitted; the model error "
                      "rests on the structure bound alone")
+    elif neighbours[0].key[0] < model.order[0] or neighbours[0].key[1] < model.order[1]:
+        notes.append(f"{model.label} is the largest order the data allow: the model error is "
+                     "estimated against smaller orders")
     return RationalFit(model=model, next_models=tuple(c.get()[0] for c in neighbours),
                        candidates={c.key: c.get()[0] for c in cands if c.tried and c.result},
                        criterion=criterion, consistent=consistent, solution=sol,

@@ -130,7 +130,7 @@ class TwoComponentModel:
                             correction)
         sol = solve(measured, form.evaluate, measured.start_constant(form.evaluate, self.theta))
         if sol is None:
-            return self
+            raise ValueError(f"{self.label}: a resample of the data could not be refitted")
         return form.model(sol.theta, sol.chi2, sol.dof)
 
 
@@ -320,8 +320,10 @@ def fit_two_component(density, base=None, parity=None, max_degree=MAX_DEGREE, va
     for _ in range(rounds):
         measured = Measured(density, base.sigma, correction)
         cands = _candidates(density, measured, valley, parity, base.chi2_scale, max_degree)
-        step = (lambda k: [(k[0] + 1, k[1] + 1), (k[0] + 2, k[1] + 2)]) if parity == "even" \
-            else (lambda k: [(k[0] + 1, k[1]), (k[0], k[1] + 1)])
+        step = (lambda k: [(k[0] + 1, k[1] + 1), (k[0] + 2, k[1] + 2), (k[0] - 1, k[1] - 1),
+                           (k[0] - 2, k[1] - 2)]) if parity == "even" \
+            else (lambda k: [(k[0] + 1, k[1]), (k[0], k[1] + 1), (k[0] - 1, k[1]),
+                             (k[0], k[1] - 1)])
         chosen, neighbours, consistent, criterion, (spurious, _) = choose_order(
             cands, density, step)
         if chosen is None:
