@@ -123,16 +123,25 @@ class WeightRows:
         return err
 
     def edge_error(self, poly, i):
-        """|O(e)| rho(e) / |p'(e) + i mu| at both ends, relative to Z(0); the
-        denominator is kept at least 1 / (q_max - q_min) as for Z."""
+        """What the range can hide of Int O rho e^{i mu q}, relative to Z(0):
+        at each end e, the tail of rho continued with its slope there,
+        rho(e) sum_k |O^(k)(e)| / |alpha|^(k+1), alpha = |p'(e) + i mu| (the
+        exact integral of O times the exponential continuation, which bounds
+        a log-concave tail; for O = 1 the endpoint term of Z). |alpha| is
+        kept at least 1 / (q_max - q_min), as for Z."""
         a, b = self.model.domain
         mu = float(self.mus[i])
         floor_ = 1.0 / (b - a)
+        coef = [float(c) for c in poly]
         total = mpmath.mpf(0)
         for e in (a, b):
             r = mpmath.exp(mpmath.mpf(float(self.model.log_density(e))) - self.log_z0)
-            dp = float(self.model.derivative(e))
-            total += abs(evaluate(poly, e)) * r / max(math.hypot(dp, mu), floor_)
+            alpha = max(math.hypot(float(self.model.derivative(e)), mu), floor_)
+            derivs, c = [], coef
+            while c:
+                derivs.append(abs(evaluate(c, e)))
+                c = [k * ck for k, ck in enumerate(c)][1:]
+            total += r * sum(d / alpha ** (k + 1) for k, d in enumerate(derivs))
         return total
 
 
