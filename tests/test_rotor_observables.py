@@ -16,14 +16,18 @@ Input as in tests/test_rotors.py: the exact ln rho (signfree.scenarios,
 12 digits) on a grid over +-0.8 V, stated error 1e-10, symmetrised.
 """
 from fractions import Fraction
+from pathlib import Path
 
 import mpmath
 import numpy as np
 import pytest
+from scipy import stats
 
 from signfree.analysis.analyse import analyse
 from signfree.analysis.mu_spec import ComplexMu
 from signfree.density import Density
+from signfree.io.reading import read_density
+from signfree.io.references import read_imaginary_reference
 from signfree.scenarios import rotor_log_density
 
 V, B = 31, 0.5
@@ -121,3 +125,30 @@ def test_imaginary_and_complex_mu(run):
         exact = float(-closed(complex(row.mu))[0].real / V)
         assert abs(float(rec["delta_f"]) - exact) <= float(row.total_err / abs(row.value)) / V \
             + 10.0 ** (-len(rec["delta_f"].split(".")[1])) / 2
+
+
+DEMO = Path(__file__).resolve().parent.parent / "data" / "demo"
+
+
+def test_demo_simulation_at_imaginary_mu_and_its_check():
+    # data/demo/rotors_imaginary.csv: exact von Mises sampling at mu = i nu of 63
+    # rotors with b = 1. Against n = -nu I1(r)/(r I0(r)), r = sqrt(1 + nu^2)
+    # (DLMF 10.32.1, 10.29.3) its chi^2 must be plausible (scipy.stats.chi2);
+    # the smoothed demo slopes must predict the same n within their errors,
+    # and the check must not reject them. The statistical part of total_err is
+    # one standard error, and on these data one fluctuation of the fitted
+    # curvature moves every point together (measured: 1.6 total errors at
+    # nu = 0.3, 0.1 at nu = 0.6), so three are allowed.
+    ref = read_imaginary_reference(DEMO / "rotors_imaginary.csv")
+    with mpmath.workdps(30):
+        exact = [float(-nu * mpmath.besseli(1, mpmath.sqrt(1 + nu * nu))
+                       / (mpmath.sqrt(1 + nu * nu) * mpmath.besseli(0, mpmath.sqrt(1 + nu * nu))))
+                 for nu in (mpmath.mpf(x.numerator) / x.denominator for x in ref.nu)]
+    z = (np.array(ref.value) - exact) / np.array(ref.error)
+    assert stats.chi2.sf(float(z @ z), len(z)) > 1e-3
+    res = analyse(read_density(DEMO / "rotors_slopes.csv"), [Fraction(0)],
+                  imaginary_reference=ref)
+    check = res.observables.check
+    assert check.dof == len(ref.nu) and check.p_value > 1e-3
+    for v, e in zip(check.values, exact):
+        assert v.status == "ok" and abs(v.value - e) <= 3 * v.total_err

@@ -102,8 +102,8 @@ def _analyse_fixed(density, mus, s):
         diffs.append([engine.difference(tr.values[0][k], tr.values[i][k])
                       for k in range(len(tr.mus))])
         if neighbour_resamples:
-            start = len(batch) + n_res * i
-            rows_i = [[engine.difference(a, b) for a, b in zip(rep_rows[j], tr.values[start + j])]
+            first = len(batch) + n_res * i
+            rows_i = [[engine.difference(a, b) for a, b in zip(rep_rows[j], tr.values[first + j])]
                       for j in range(n_res)]
             diff_noise.append(uncertainty.spread_relative(method, diffs[-1], rows_i))
     rows = []

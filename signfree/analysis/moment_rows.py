@@ -31,6 +31,7 @@ import dataclasses
 import math
 from dataclasses import dataclass
 from fractions import Fraction
+from functools import lru_cache
 
 import mpmath
 import numpy as np
@@ -129,20 +130,31 @@ class WeightRows:
         exact integral of O times the exponential continuation, which bounds
         a log-concave tail; for O = 1 the endpoint term of Z). |alpha| is
         kept at least 1 / (q_max - q_min), as for Z."""
-        a, b = self.model.domain
         mu = float(self.mus[i])
-        floor_ = 1.0 / (b - a)
-        coef = [float(c) for c in poly]
         total = mpmath.mpf(0)
-        for e in (a, b):
-            r = mpmath.exp(mpmath.mpf(float(self.model.log_density(e))) - self.log_z0)
-            alpha = max(math.hypot(float(self.model.derivative(e)), mu), floor_)
-            derivs, c = [], coef
-            while c:
-                derivs.append(abs(evaluate(c, e)))
-                c = [k * ck for k, ck in enumerate(c)][1:]
-            total += r * sum(d / alpha ** (k + 1) for k, d in enumerate(derivs))
+        for e, r, dp, floor_ in self._ends():
+            alpha = max(math.hypot(dp, mu), floor_)
+            total += r * sum(d / alpha ** (k + 1) for k, d in enumerate(_derivatives(poly, e)))
         return total
+
+    def _ends(self):
+        """(e, rho(e) / Z(0) as mpf, p'(e), floor of |alpha|) at both ends."""
+        if not hasattr(self, "_end_data"):
+            a, b = self.model.domain
+            self._end_data = [
+                (e, mpmath.exp(mpmath.mpf(float(self.model.log_density(e))) - self.log_z0),
+                 float(self.model.derivative(e)), 1.0 / (b - a)) for e in (a, b)]
+        return self._end_data
+
+
+@lru_cache(maxsize=256)
+def _derivatives(poly, e):
+    """|O^(k)(e)| for k = 0, 1, ... (O a tuple of power-series coefficients)."""
+    out, c = [], [float(x) for x in poly]
+    while c:
+        out.append(abs(evaluate(c, e)))
+        c = [k * ck for k, ck in enumerate(c)][1:]
+    return tuple(out)
 
 
 def weight_rows(model, mus, order, digits):

@@ -5,6 +5,7 @@ with the error budget of a results row (the methods are described in
 """
 import math
 from fractions import Fraction
+from functools import cached_property
 
 import mpmath
 import numpy as np
@@ -36,17 +37,17 @@ class ObsValue:
     digits: int = 12
     dev: object = None      # complex deviations, sum |dev|^2 = stat_err^2
 
-    @property
+    @cached_property
     def total_err(self):
         return sum((e for e in (self.quad_err, self.model_err, self.edge_err, self.stat_err)
                     if e is not None), mpmath.mpf(0))
 
-    @property
+    @cached_property
     def size(self):
         """The size the errors are judged against: max(|value|, scale)."""
         return max(abs(self.value), mpmath.mpf(self.scale))
 
-    @property
+    @cached_property
     def status(self):
         """The worse of its own status and that of Z(mu) at the same mu: a
         ratio whose denominator is not determined (its distribution reaching
@@ -71,7 +72,7 @@ class ObsValue:
             return "unresolved" if top == "precision" else top
         return "ok"
 
-    @property
+    @cached_property
     def last_digit(self):
         """Decimal exponent of the last supported digit, or None."""
         S, err = self.size, self.total_err
@@ -199,10 +200,9 @@ def moment_gradients(wr, poly, ks):
 
 def _complex(z):
     """An acb midpoint as a Python complex (inf when out of range)."""
-    try:
-        return complex(to_mpc(z)) if z.is_finite() else complex(math.inf, 0)
-    except OverflowError:
+    if not z.is_finite():
         return complex(math.inf, 0)
+    return complex(float(z.real.mid()), float(z.imag.mid()))
 
 
 def deviations(method, central, samples):

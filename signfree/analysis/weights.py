@@ -19,6 +19,7 @@ Polynomials, 2003, eq. 2.14), and T_j T_k = (T_{j+k} + T_{|j-k|}) / 2.
 import re
 from dataclasses import dataclass
 from fractions import Fraction
+from functools import lru_cache
 from math import comb
 
 MAX_POWER = 12
@@ -154,6 +155,7 @@ def power_in_chebyshev(n):
     return out
 
 
+@lru_cache(maxsize=512)
 def in_window(poly, domain):
     """O(q) = sum_n poly[n] q^n as exact Chebyshev coefficients in the window
     coordinate x of ``domain`` = (a, b), q = mid + half x."""
@@ -167,7 +169,7 @@ def in_window(poly, domain):
             c = Fraction(o) * comb(n, i) * mid ** (n - i) * half ** i
             for k, t in enumerate(power_in_chebyshev(i)):
                 out[k] += c * t
-    return out
+    return tuple(out)
 
 
 def chebyshev_product(u, v):
