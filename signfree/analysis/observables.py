@@ -30,7 +30,7 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 
 from signfree.analysis.imaginary import complex_part, imaginary_check
-from signfree.analysis.mu_spec import split_real
+from signfree.analysis.mu_spec import ComplexMu, split_real
 from signfree.analysis.ratios import (SUFFIXES, ObsValue, cells, evaluate_set,
                                       natural_scales, short, stat_from, stat_plan)
 from signfree.analysis.results import format_mu
@@ -154,10 +154,22 @@ def attach_observables(analysis, other, settings):
 
 def split_mus(mus):
     """(real mu, mu off the real axis), each in the order given; mu = 0 stands
-    in for the real part when every value is off the axis."""
-    real, other = split_real(list(mus))
+    in for the real part when every value is off the axis. Python or mpmath
+    complex numbers are taken as the exact binary fractions they hold."""
+    real, other = split_real([_as_mu(m) for m in mus])
     real = [m for _, m in real] or [Fraction(0)]
     return real, [m for _, m in other]
+
+
+def _as_mu(m):
+    if isinstance(m, ComplexMu):
+        return m
+    im = getattr(m, "imag", 0)
+    if im != 0:
+        return ComplexMu(Fraction(float(m.real)), Fraction(float(im)))
+    if isinstance(m, complex) or type(m).__name__ == "mpc":
+        return Fraction(float(m.real))
+    return m
 
 
 def wanted(settings, other):

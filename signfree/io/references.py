@@ -35,7 +35,7 @@ class ImaginaryReference:
     value: tuple
     error: tuple
     source: str = "<memory>"
-    metadata: dict = field(default_factory=dict)
+    metadata: dict = field(default_factory=dict, hash=False, compare=False)
 
 
 def read_imaginary_reference(path):
