@@ -23,8 +23,10 @@ the cancellation needs. Every value carries the errors of a results row:
 and a status with the precedence of a results row, judged against the
 larger of |value| and the observable's natural size at mu = 0 (the spread
 of q, kappa_2, or <|O|> under the measured density), so that a value that
-is zero by symmetry is not mistaken for noise. A mu whose Z(mu) row is
-'unresolved' leaves every ratio there 'unresolved' too.
+is zero by symmetry is not mistaken for noise. A ratio is never better
+than Z(mu) at the same mu: where Z is unresolved, noise-limited (its
+distribution reaches zero, and a ratio's resampled spread means nothing) or
+edge-limited, so is the ratio.
 """
 from dataclasses import dataclass, field
 from fractions import Fraction

@@ -4,12 +4,12 @@ with the error budget of a results row (the methods are described in
 :mod:`signfree.analysis.observables`).
 """
 import math
+from dataclasses import dataclass
 from fractions import Fraction
 from functools import cached_property
 
 import mpmath
 import numpy as np
-from dataclasses import dataclass
 from flint import acb, acb_mat, arb, arb_mat, ctx, fmpq
 
 from signfree.analysis import uncertainty
