@@ -35,6 +35,9 @@ _API = {
     "compare": "signfree.analysis.compare",
     "make_figures": "signfree.report.figures",
     "html_report": "signfree.report.page",
+    "ComplexMu": "signfree.analysis.mu_spec",
+    "parse_observables": "signfree.analysis.weights",
+    "read_imaginary_reference": "signfree.io.references",
 }
 
 __all__ = sorted(_API)

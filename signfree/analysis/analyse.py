@@ -15,7 +15,7 @@ import mpmath
 import numpy as np
 
 from signfree import engine
-from signfree.analysis import budget, uncertainty
+from signfree.analysis import budget, observables, uncertainty
 from signfree.analysis.cumulant import analyse_cumulant
 from signfree.analysis.results import Analysis, ResultTable, Row, density_rises_at_edge
 from signfree.analysis.settings import MODELS, check_digits, parse_mu_spec, settings_of
@@ -48,16 +48,23 @@ def analyse(density, mus, settings=None, samples=None, **changes):
     error. ``model='cumulant'`` sums the cumulant expansion to ``order``
     (cumulants from ``samples``, raw :class:`signfree.io.samples.Samples`,
     when given; else from a histogram's counts; else from the smoothed
-    density)."""
+    density). ``observables`` (e.g. 'n,chi,q^2') adds those at every mu
+    (``Analysis.observables``); mu off the real axis and an
+    ``imaginary_reference`` are handled there too."""
     s = settings_of(settings, **changes)
+    mus, off_axis = observables.split_mus(mus)
     if s.model == "cumulant":
         reference = _analyse_fixed(density, mus, s.with_(model="chebyshev",
                                                          degree=None if s.degree == "per-mu"
                                                          else s.degree))
-        return analyse_cumulant(density, mus, s, samples, reference)
-    if s.degree == "per-mu":
-        return _analyse_per_mu(density, mus, s)
-    return _analyse_fixed(density, mus, s)
+        result = analyse_cumulant(density, mus, s, samples, reference)
+    elif s.degree == "per-mu":
+        result = _analyse_per_mu(density, mus, s)
+    else:
+        result = _analyse_fixed(density, mus, s)
+    if observables.wanted(s, off_axis):
+        observables.attach_observables(result, off_axis, s)
+    return result
 
 
 def _analyse_fixed(density, mus, s):

@@ -207,7 +207,10 @@ def error_string(e):
 
 
 def format_mu(mu):
-    """mu as a short decimal (at most 15 significant digits)."""
+    """mu as a short decimal (at most 15 significant digits); a mu off the
+    real axis by its own text ('0.5i', '0.3+0.2i')."""
+    if not isinstance(mu, (Fraction, int)):
+        return str(mu)
     s = mpmath.nstr(mpmath.mpf(mu.numerator) / mu.denominator, 15)
     return s[:-2] if s.endswith(".0") else s
 
@@ -220,6 +223,11 @@ class ResultTable:
     model_label: str
     volume: float = None
     info: dict = field(default_factory=dict)
+    # further columns per row (name -> one string per row) and further rows
+    # (dicts by column name, e.g. at mu off the real axis), both appended by
+    # records() and columns()
+    extra_columns: dict = field(default_factory=dict)
+    extra_rows: list = field(default_factory=list)
 
     COLUMNS = ("mu", "avg_phase", "avg_phase_imag", "avg_phase_err", "delta_f",
                "delta_f_err", "cancel_orders", "quad_err", "model_err", "edge_err",
@@ -245,7 +253,16 @@ class ResultTable:
                 "degree": "" if r.degree is None else str(r.degree),
                 "naive_samples": _power_of_ten(r.naive_log10_samples),
             })
+        for name, values in self.extra_columns.items():
+            for rec, v in zip(out, values):
+                rec[name] = v
+        columns = self.columns()
+        out.extend({c: rec.get(c, "") for c in columns} for rec in self.extra_rows)
         return out
+
+    def columns(self):
+        """The columns of records(): COLUMNS, then the extra ones."""
+        return self.COLUMNS + tuple(c for c in self.extra_columns if c not in self.COLUMNS)
 
     def status_counts(self):
         counts = {s: 0 for s in STATUSES}
@@ -366,3 +383,4 @@ class Analysis:
     transform: object
     table: ResultTable
     seconds: float
+    observables: object = None   # analysis.observables.ObservableResult, when asked for

@@ -8,7 +8,9 @@ A new option is a new field here (with its check in ``__post_init__``); the
 command line fills the fields of the same names.
 """
 from dataclasses import dataclass, fields, replace
-from fractions import Fraction
+
+from signfree.analysis.mu_spec import ComplexMu, parse_mu_values
+from signfree.analysis.weights import parse_observables
 
 MODELS = ("chebyshev", "piecewise", "cumulant")
 ERROR_METHODS = ("auto", "jackknife", "bootstrap", "covariance", "none")
@@ -31,6 +33,10 @@ class Settings:
     bootstrap_samples, seed   bootstrap resamples and their seed (None: random,
               recorded)
     order     highest order of the cumulant expansion
+    observables  names of the observables wanted at every mu: 'n', 'chi' and
+              polynomials in q (analysis.weights); a comma list or a tuple
+    imaginary_reference  measured <q>(nu) at imaginary mu = i nu to compare
+              with (an io.references.ImaginaryReference), or None
     """
 
     model: str = "chebyshev"
@@ -43,6 +49,8 @@ class Settings:
     bootstrap_samples: int = 200
     seed: int = None
     order: int = 4
+    observables: tuple = ()
+    imaginary_reference: object = None
 
     def __post_init__(self):
         if self.model not in MODELS:
@@ -62,6 +70,11 @@ class Settings:
             raise ValueError(f"--order {self.order}: expected at least 1")
         if not (self.degree is None or self.degree == "per-mu" or isinstance(self.degree, int)):
             raise ValueError(f"--degree {self.degree!r}: expected an integer or 'per-mu'")
+        if isinstance(self.observables, str):
+            items = tuple(s.strip() for s in self.observables.split(","))
+            object.__setattr__(self, "observables", items)
+        if self.observables:
+            parse_observables(self.observables)
 
     def with_(self, **changes):
         """A copy with some fields changed (checked again)."""
@@ -85,27 +98,20 @@ def check_digits(digits):
     return digits
 
 
-def parse_mu_spec(spec):
+def parse_mu_spec(spec, allow_complex=False):
     """'0.1,0.5,1' (a list) or 'start:stop:count' (count evenly spaced values,
-    both ends included) as exact fractions of the decimals written."""
-    spec = spec.strip()
+    both ends included) as exact fractions of the decimals written; values
+    may use pi ('0:2pi:61', 'pi/2'). With ``allow_complex``, imaginary and
+    complex values ('0.5i', '0:1i:11', '0.3+0.2i') come back as
+    :class:`~signfree.analysis.mu_spec.ComplexMu` (grammar in
+    :mod:`signfree.analysis.mu_spec`)."""
     try:
-        if ":" in spec:
-            parts = spec.split(":")
-            if len(parts) != 3:
-                raise ValueError
-            start, stop = Fraction(parts[0].strip()), Fraction(parts[1].strip())
-            count = int(parts[2].strip())
-            if count < 1 or (count == 1 and start != stop):
-                raise ValueError
-            if count == 1:
-                return [start]
-            h = (stop - start) / (count - 1)
-            return [start + k * h for k in range(count)]
-        values = [Fraction(s.strip()) for s in spec.split(",")]
-        if not values:
-            raise ValueError
-        return values
-    except (ValueError, ZeroDivisionError):
-        raise ValueError(f"--mu {spec!r}: expected a comma list such as 0.1,0.5,1 "
-                         "or start:stop:count such as 0:2:41") from None
+        values = parse_mu_values(spec)
+    except (ValueError, ZeroDivisionError) as exc:
+        raise ValueError(f"--mu {spec.strip()!r}: {exc}; expected a comma list such as "
+                         "0.1,0.5,1 or start:stop:count such as 0:2:41 (pi and i allowed, "
+                         "e.g. 0:2pi:61 or 0:1i:11)") from None
+    if not allow_complex and any(isinstance(v, ComplexMu) for v in values):
+        raise ValueError(f"--mu {spec.strip()!r}: this command takes real mu only "
+                         "(imaginary and complex mu are for run and report)")
+    return values

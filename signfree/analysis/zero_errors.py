@@ -99,7 +99,7 @@ def _structure_shift(density, fit, zero, ev):
                        ev.prec)
     scale = engine.abs_mid(norm[0])
     mags = np.array([float(engine.upper(z) / scale) for z in zs])
-    G = mags[J + 1:] + mags[:J][::-1]          # |F(z + w_j)| + |F(z - w_j)|
+    G = mags[J + 1:] + mags[:J][::-1]          # |F(z + w_j)| + |F(z - w_j)|, either phase
     dZ = budget.combine(weights, G)
     slope = engine.abs_mid(ds[J]) / scale
     return dZ / slope if slope > 0 else mpmath.inf

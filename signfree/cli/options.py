@@ -35,7 +35,8 @@ def add_input_options(p, symmetry=True):
 
 def add_analysis_options(p):
     p.add_argument("--mu", required=True, metavar="SPEC",
-                   help="mu values: a comma list (0.1,0.5,1) or start:stop:count")
+                   help="mu values: a comma list (0.1,0.5,1) or start:stop:count; pi and i "
+                        "allowed (0:2pi:61, 0:1i:11, 0.3+0.2i)")
     p.add_argument("--volume", type=float, help="volume V for delta_f (overrides metadata)")
     add_input_options(p)
     p.add_argument("--model", choices=MODELS, default="chebyshev",
@@ -57,6 +58,13 @@ def add_analysis_options(p):
     p.add_argument("--seed", type=int, help="bootstrap seed (default: random, recorded)")
     p.add_argument("--certify", action="store_true",
                    help="rigorous enclosures by acb.integral per point (slower)")
+    p.add_argument("--observables", metavar="LIST",
+                   help="also compute at every mu: n (charge density <q>/V), chi (its "
+                        "susceptibility), polynomials in q such as q^2 (ratios <O>); a comma "
+                        "list, e.g. n,chi,q^2")
+    p.add_argument("--imaginary-reference", metavar="FILE",
+                   help="CSV nu,value,error: <q>/V measured at imaginary mu = i nu, compared "
+                        "with the prediction (chi^2)")
 
 
 def _degree(text):
@@ -91,8 +99,17 @@ def settings_from_args(args):
         "errors": getattr(args, "errors", None),
         "bootstrap_samples": getattr(args, "bootstrap", None), "seed": getattr(args, "seed", None),
         "order": getattr(args, "order", None),
+        "observables": getattr(args, "observables", None),
+        "imaginary_reference": _imaginary_reference(getattr(args, "imaginary_reference", None)),
     }
     return Settings(**{k: v for k, v in given.items() if v is not None})
+
+
+def _imaginary_reference(path):
+    if path is None:
+        return None
+    from signfree.io.references import read_imaginary_reference
+    return read_imaginary_reference(path)
 
 
 def read_reference(path):

@@ -5,6 +5,7 @@ from pathlib import Path
 
 from signfree.cli.options import add_analysis_options, read_reference
 from signfree.cli.run import run_files
+from signfree.report.outputs import observables_text
 from signfree.report.page import report_files
 
 HELP = 'analysis with figures and an offline HTML report'
@@ -49,6 +50,9 @@ def cmd_report(args):
     print(result.table.text(reference))
     counts = ", ".join(f"{v} {k}" for k, v in result.table.status_counts().items() if v)
     print(f"statuses: {counts}")
+    if result.observables is not None:
+        print(observables_text(result.observables))
+    figures = sum(1 for name in files if name.endswith((".png", ".pdf")))
     print(f"wrote {folder / 'report.html'}, results.csv, summary.json and "
-          f"{len(files) - 3} figure files in {folder}")
+          f"{figures} figure files in {folder}")
     return 0

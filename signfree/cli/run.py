@@ -47,8 +47,10 @@ def _analyse_one(job):
     except (InputError, ValueError) as exc:
         return path, None, str(exc)
     if getattr(args, "plots", False):
-        from signfree.report.figures import figures_files
+        from signfree.report.figures import figures_files, write_figures
+        from signfree.report.observables import observable_figures
         files.update(figures_files(result))
+        files.update(write_figures(observable_figures(result)))
     return path, report_text(result), files
 
 

@@ -9,7 +9,6 @@ from datetime import datetime, timezone
 import numpy as np
 
 from signfree.analysis.analyse import analyse
-from signfree.analysis.results import ResultTable
 from signfree.analysis.settings import parse_mu_spec
 from signfree.io.samples import binned_error, load
 from signfree.io.writing import csv_text, file_sha256, json_text, package_versions
@@ -19,7 +18,7 @@ def analyse_file(input_path, mu_spec, settings, kind=None, volume=None, symmetry
     """Read one input file, analyse it with ``settings`` over the mu of
     ``mu_spec`` and prepare its files; returns (Analysis, {name: text}).
     Raises InputError or ValueError on bad input before anything is written."""
-    mus = parse_mu_spec(mu_spec)
+    mus = parse_mu_spec(mu_spec, allow_complex=True)
     start = time.perf_counter()
     density, samples, sample_notes = load(input_path, kind=kind, volume=volume,
                                           symmetry=symmetry)
@@ -50,8 +49,11 @@ def analyse_file(input_path, mu_spec, settings, kind=None, volume=None, symmetry
         "run_seconds": round(time.perf_counter() - start, 3),
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
     }
-    files = {"results.csv": csv_text(ResultTable.COLUMNS, table.records()),
+    files = {"results.csv": csv_text(table.columns(), table.records()),
              "summary.json": json_text(summary)}
+    check = getattr(result.observables, "check", None)
+    if check is not None:
+        files["imaginary_check.csv"] = csv_text(check.COLUMNS, check.records())
     return result, files
 
 
@@ -75,8 +77,23 @@ def print_report(result, folder, reference=None, out=sys.stdout):
     counts = ", ".join(f"{v} {k}" for k, v in table.status_counts().items() if v)
     print(f"statuses: {counts}; statistical errors: {info['statistical_errors']}", file=out)
     print(horizon_line(info["horizon"]), file=out)
+    if result.observables is not None:
+        print(observables_text(result.observables), file=out)
     if folder is not None:
         print(f"wrote {folder / 'results.csv'} and {folder / 'summary.json'}", file=out)
+
+
+def observables_text(obs):
+    """The observables at real mu, the rows off the real axis and the
+    imaginary-mu check, as printed after the table."""
+    parts = []
+    if obs.real is not None:
+        parts.append("observables (value ±total error [status]):\n" + obs.real.text())
+    if obs.complex is not None:
+        parts.append("imaginary and complex mu:\n" + obs.complex.text())
+    if obs.check is not None:
+        parts.append(obs.check.line())
+    return "\n".join(parts)
 
 
 def horizon_line(h):

@@ -13,6 +13,8 @@ from pathlib import Path
 import mpmath
 
 from signfree.report.figures import _png, figure_name, make_figures, write_figures
+from signfree.report.observables import CAPTIONS as OBSERVABLE_CAPTIONS
+from signfree.report.observables import observable_figures, observables_section
 from signfree.report.routes import comparison_deviations
 from signfree.report.style import horizon_text
 
@@ -327,7 +329,7 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
 
     parts.append('<section id="figures"><h2>Figures</h2><div class="figures">')
     for name, fig in figures.items():
-        caption = FIGURE_CAPTIONS.get(name, name)
+        caption = FIGURE_CAPTIONS.get(name) or OBSERVABLE_CAPTIONS.get(name, name)
         parts.append(f'<figure id="fig-{_e(name)}"><img src="{_png_data_uri(fig)}" '
                      f'alt="{_e(name)} figure" width="510">'
                      f"<figcaption><b>{_e(name)}.</b> {_e(caption)}</figcaption></figure>")
@@ -346,6 +348,7 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
     parts.append(_table(columns, records, "results-table"))
     parts.append("</section>")
 
+    parts.append(observables_section(analysis))
     if comparison is not None:
         parts.append(_comparison_section(comparison, info.get("model")))
     if zeros is not None:
@@ -386,6 +389,7 @@ def report_files(analysis, files, reference=None):
     figures and report.html."""
     summary = json.loads(files["summary.json"]) if "summary.json" in files else {}
     figures = make_figures(analysis, reference)
+    figures.update(observable_figures(analysis))
     figure_bytes = write_figures(figures)
     pngs = {name: figure_bytes[figure_name(name, "png")] for name in figures}
     out = dict(files)
