@@ -343,3 +343,4 @@ class Analysis:
     transform: object
     table: ResultTable
     seconds: float
+    samples: object = None      # the raw samples the density was binned from, if any

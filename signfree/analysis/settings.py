@@ -62,6 +62,9 @@ class Settings:
             raise ValueError(f"--order {self.order}: expected at least 1")
         if not (self.degree is None or self.degree == "per-mu" or isinstance(self.degree, int)):
             raise ValueError(f"--degree {self.degree!r}: expected an integer or 'per-mu'")
+        if self.degree is not None and self.model != "chebyshev":
+            raise ValueError(f"--degree {self.degree}: the degree applies only to the "
+                             f"Chebyshev model, not to --model {self.model}")
 
     def with_(self, **changes):
         """A copy with some fields changed (checked again)."""

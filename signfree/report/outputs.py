@@ -24,6 +24,7 @@ def analyse_file(input_path, mu_spec, settings, kind=None, volume=None, symmetry
     density, samples, sample_notes = load(input_path, kind=kind, volume=volume,
                                           symmetry=symmetry)
     result = analyse(density, mus, settings, samples=samples)
+    result.samples = samples
     result.table.info["notes"][:0] = list(sample_notes)
     if samples is not None:
         err, tau, n_eff = binned_error(samples.q, samples.weights)

@@ -63,7 +63,9 @@ ERROR_TEXT = [
 CSS = """
 body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; color: #1a1a1a;
        margin: 0; background: #fafafa; line-height: 1.45; font-size: 15px; }
-main { max-width: 1100px; margin: 0 auto; padding: 1.5em 2em 3em; background: #fff; }
+main { max-width: 1100px; margin: 0 auto; padding: 1.5em 2em 3em; background: #fff;
+       box-sizing: border-box; }
+section { min-width: 0; }
 h1 { font-size: 1.5em; margin-bottom: 0.2em; }
 h2 { font-size: 1.2em; border-bottom: 1px solid #ddd; padding-bottom: 0.2em; margin-top: 2em; }
 p.lead { color: #444; margin-top: 0; }
@@ -76,7 +78,8 @@ dl.terms dd { margin-left: 1.5em; }
 figure { margin: 0; max-width: 100%; }
 figure img { width: 510px; max-width: 100%; height: auto; border: 1px solid #eee; }
 figcaption { font-size: 0.9em; color: #444; max-width: 510px; }
-.scroll { overflow-x: auto; }
+.scroll { overflow-x: auto; max-width: 100%; }
+#results .scroll { max-height: 32em; overflow-y: auto; }
 table { border-collapse: collapse; font-size: 0.85em; }
 th, td { padding: 0.2em 0.6em; border-bottom: 1px solid #e4e4e4; text-align: right;
          white-space: nowrap; }
@@ -98,22 +101,25 @@ FIGURE_CAPTIONS = {
            "units of the errors (the band marks one error).",
     "phase": "log10 |Z(mu)/Z(0)| with the band value ± total error (clipped at the bottom of "
              "the axes where the error reaches the value). Squares: edge_limited; diamonds: "
-             "noise_limited; crosses: unresolved; open symbols: not one digit supported, "
-             "drawn at the upper bound |value| + total error. Shaded columns bracket sign "
-             "changes of Z(mu).",
+             "noise_limited; crosses: unresolved; open symbols with an arrow down: not one digit "
+             "supported, drawn at the upper bound |value| + total error. Shaded columns "
+             "bracket sign changes of Z(mu).",
     "depth": "The cancellation depth D(mu) = -log10 |Z(mu)/Z(0)| against -log10 of the total "
-             "error: where D exceeds it, not one digit of the value is supported (open "
-             "symbols, drawn at the lower bound -log10(|value| + total error)). The dotted "
-             "line marks the horizon.",
-    "compare": "log10 |Z(mu)/Z(0)| of every model compared (filled: ok; open: edge or noise "
-               "limited; open triangles: upper bounds where not one digit is supported). The "
-               "legend gives the "
-               "largest deviation from the chosen model in units of the combined error "
-               "(avg_phase_err and model_err of both models, and at least half a unit in the "
-               "last printed digit) over the rows where both have digits.",
-    "zeros": "Zeros of Z(mu) in the complex mu plane with their errors, the searched box and "
-             "the circle out to which the cumulant series of ln Z converges (the distance to "
-             "the nearest zero). Real zeros are sign changes of the phase factor.",
+             "error (not drawn at mu = 0, where Z(0)/Z(0) = 1 by definition): where D exceeds "
+             "it, not one digit of the value is supported (open symbols with an arrow up, "
+             "drawn at the lower bound -log10(|value| + total error)). The dotted line marks "
+             "the horizon.",
+    "compare": "Upper panel: log10 |Z(mu)/Z(0)| of every route compared (filled: ok; open: "
+               "edge or noise limited; open triangles: upper bounds where not one digit is "
+               "supported). Lower panel: each route minus the chosen model in units of their "
+               "combined error (the sum of both total errors, at least half a unit in the "
+               "last printed digit), where both have digits; the shaded band |deviation| <= 1 "
+               "is agreement. The legend gives each route's largest |deviation|.",
+    "zeros": "Zeros of Z(mu) in the complex mu plane with their error discs, the searched "
+             "box, the real axis and the disc in which the cumulant series of ln Z converges "
+             "(out to the nearest zero). Open symbols with a dashed disc: zeros that the ends "
+             "of the data range could move by that much, possibly artefacts of the range. "
+             "Real zeros are sign changes of the phase factor.",
 }
 
 
@@ -124,6 +130,8 @@ def _e(x):
 def _fmt(x):
     if x is None:
         return ""
+    if isinstance(x, bool):
+        return "yes" if x else "no"
     if isinstance(x, float):
         return f"{x:.6g}"
     if isinstance(x, (list, tuple)):
@@ -131,6 +139,18 @@ def _fmt(x):
     if isinstance(x, dict):
         return "; ".join(f"{k}: {_fmt(v)}" for k, v in x.items())
     return str(x)
+
+
+def parity_test_text(test):
+    """The parity test of the fit in words, or None when none was made."""
+    if not test:
+        return None
+    text = (f"{test.get('result', '?')}: {test.get('test', 'test')} at degree "
+            f"{test.get('degree', '?')}")
+    if test.get("delta_chi2") is not None:
+        text += (f", delta chi2 = {test['delta_chi2']:.3g} for {test.get('delta_m', '?')} "
+                 f"odd coefficients, p = {test.get('p', float('nan')):.3g}")
+    return text
 
 
 def _kv(pairs):
@@ -305,7 +325,7 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
         ("degree criterion", info.get("degree_criterion")),
         ("fit consistent with the errors", info.get("fit_consistent")),
         ("errors estimated from residuals", info.get("errors_estimated_from_residuals")),
-        ("parity test", info.get("parity_test")),
+        ("parity test", parity_test_text(info.get("parity_test"))),
         ("model_err against", info.get("model_err_against")),
         ("statistical errors", info.get("statistical_errors")),
         ("bootstrap seed", info.get("bootstrap_seed")),
@@ -373,14 +393,18 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
     return "\n".join(parts)
 
 
-def report_files(analysis, files, reference=None):
+def report_files(analysis, files, reference=None, comparison=None, zeros=None, field="mu"):
     """The files of ``signfree run`` (``files``: name -> text) plus the
-    figures and report.html."""
+    figures and report.html; ``comparison`` (a Comparison) and ``zeros`` (a
+    ZeroResult) add their sections and figures; ``field`` ('mu' or 'theta')
+    names the axes."""
     summary = json.loads(files["summary.json"]) if "summary.json" in files else {}
-    figures = make_figures(analysis, reference)
+    figures = make_figures(analysis, reference, comparison=comparison, zeros=zeros,
+                           field=field)
     figure_bytes = write_figures(figures)
     pngs = {name: figure_bytes[figure_name(name, "png")] for name in figures}
     out = dict(files)
     out.update(figure_bytes)
-    out["report.html"] = html_report(analysis, pngs, summary, reference=reference)
+    out["report.html"] = html_report(analysis, pngs, summary, comparison=comparison,
+                                     zeros=zeros, reference=reference)
     return out
