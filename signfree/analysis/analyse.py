@@ -95,8 +95,8 @@ def _analyse_fixed(density, mus, s):
         diffs.append([engine.difference(tr.values[0][k], tr.values[i][k])
                       for k in range(len(tr.mus))])
         if neighbour_resamples:
-            start = len(batch) + n_res * i
-            rows_i = [[engine.difference(a, b) for a, b in zip(rep_rows[j], tr.values[start + j])]
+            first = len(batch) + n_res * i
+            rows_i = [[engine.difference(a, b) for a, b in zip(rep_rows[j], tr.values[first + j])]
                       for j in range(n_res)]
             diff_noise.append(uncertainty.spread_relative(method, diffs[-1], rows_i))
     rows = []
@@ -140,8 +140,9 @@ def _analyse_fixed(density, mus, s):
     else:
         info["model_err_against"] = "piecewise through every other knot"
     if method == "none":
-        info["notes"].append("no replicas and no per-point errors: no statistical error "
-                             "(avg_phase_err is empty), so the horizon rests on the other errors")
+        why = ("--errors none" if errors == "none" else "no replicas and no per-point errors")
+        info["notes"].append(f"{why}: no statistical error (avg_phase_err is empty), so the "
+                             "horizon rests on the other errors")
     if density_rises_at_edge(central):
         info["notes"].append("ln rho does not fall towards an end of the data range: the range "
                              "cuts off part of the density and edge_err is large")
@@ -150,7 +151,8 @@ def _analyse_fixed(density, mus, s):
     table = ResultTable(rows=rows, model_label=central.label, volume=volume, info=info)
     info["horizon"] = table.horizon()
     return Analysis(density=density, model=central, fit=fit, transform=tr, table=table,
-                    seconds=time.perf_counter() - start)
+                    seconds=time.perf_counter() - start,
+                    replica_rows=(method, len(batch), n_res) if resamples else None)
 
 
 def _mpc(z):

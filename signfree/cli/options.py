@@ -111,6 +111,9 @@ def add_analysis_options(p):
     p.add_argument("--seed", type=int, help="bootstrap seed (default: random, recorded)")
     p.add_argument("--certify", action="store_true",
                    help="rigorous enclosures by acb.integral per point (slower)")
+    p.add_argument("--covariance", action="store_true",
+                   help="also write covariance.csv: the covariance of Z(mu_i)/Z(0) across "
+                        "the scan from the resampled fits (needs replicas)")
 
 
 def _degree(text):

@@ -33,8 +33,13 @@ def run_files(input_path, args, reference=None):
     """Read, analyse and prepare the files of one run from parsed options;
     raises InputError or ValueError on bad input before anything is written."""
     settings = settings_from_args(args)
-    return analyse_file(input_path, args.mu, settings, kind=args.kind, volume=args.volume,
-                        symmetry=args.symmetry)
+    result, files = analyse_file(input_path, args.mu, settings, kind=args.kind,
+                                 volume=args.volume, symmetry=args.symmetry)
+    if getattr(args, "covariance", False):
+        from signfree.analysis.covariance import COLUMNS, covariance_records
+        from signfree.io.writing import csv_text
+        files["covariance.csv"] = csv_text(COLUMNS, covariance_records(result))
+    return result, files
 
 
 def _analyse_one(job):

@@ -51,7 +51,8 @@ def analyse_file(input_path, mu_spec, settings, kind=None, volume=None, symmetry
         "run_seconds": round(time.perf_counter() - start, 3),
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
     }
-    files = {"results.csv": csv_text(ResultTable.COLUMNS, table.records()),
+    files = {"results.csv": csv_text(ResultTable.COLUMNS,
+                                     table.records(guard=ResultTable.GUARD_DIGITS)),
              "summary.json": json_text(summary)}
     return result, files
 
@@ -64,7 +65,7 @@ def print_report(result, folder, reference=None, out=sys.stdout):
     fit = ""
     if info.get("chi2_per_dof") is not None:
         fit = f", chi2/dof = {info['chi2_per_dof']:.3g} ({info['degree_criterion']})"
-    print(f"{result.density.source}: {result.density.kind}, {result.density.n_points} points; "
+    print(f"{result.density.source}: {input_text(result)}; "
           f"model {info['model']} parity {info['parity']}{fit}", file=out)
     print(f"integration: {info['integration']}, {info['precision_digits']} digits working "
           f"precision, {info['nodes']} nodes, {result.seconds:.2f} s", file=out)
@@ -78,11 +79,21 @@ def print_report(result, folder, reference=None, out=sys.stdout):
         print(f"wrote {folder / 'results.csv'} and {folder / 'summary.json'}", file=out)
 
 
+def input_text(result):
+    """What was read, in a few words: 'slopes, 96 points', or for raw
+    samples 'samples, 100000 values binned into 59 bins'."""
+    density, samples = result.density, getattr(result, "samples", None)
+    if samples is not None:
+        return (f"samples, {len(samples.q)} values binned into {density.n_points} "
+                f"{density.metadata.get('binning', '')} bins").replace("  ", " ")
+    return f"{density.kind}, {density.n_points} points"
+
+
 def horizon_line(h):
     """The headline practitioners quote: where the signal is lost, and what
     direct reweighting would cost there."""
     if h["mu"] is None:
-        return (f"horizon: no mu of the scan is resolved two standard errors away from zero "
+        return (f"horizon: no mu of the scan is resolved two total errors away from zero "
                 f"(limited by {h['reason']} at mu = {h['first_lost_mu']:g})")
     text = (f"horizon: signal to mu = {h['mu']:g} ({h['cancel_orders']:.1f} orders cancelled)")
     text += (", end of scan" if h["first_lost_mu"] is None else

@@ -136,7 +136,7 @@ def horizon_text(table):
     if isinstance(h, dict):
         lost, reason = h.get("first_lost_mu"), h.get("reason")
         if found is None:
-            text = "horizon: no mu of the scan is resolved two standard errors away from zero"
+            text = "horizon: no mu of the scan is resolved two total errors away from zero"
         else:
             text = f"horizon: signal up to mu = {found[0]:g}"
             if found[1] is not None:
