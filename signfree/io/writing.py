@@ -25,8 +25,10 @@ from signfree.errors import OutputError
 
 
 def file_sha256(path):
+    """The sha256 of an input's file (for ``data.h5:/run/q``, of data.h5)."""
+    from signfree.io.tables import file_of
     h = hashlib.sha256()
-    with open(path, "rb") as f:
+    with open(file_of(path), "rb") as f:
         for block in iter(lambda: f.read(1 << 16), b""):
             h.update(block)
     return h.hexdigest()
