@@ -13,7 +13,7 @@ import time
 import mpmath
 import numpy as np
 
-from signfree import engine
+from signfree import engine, progress
 from signfree.analysis import uncertainty
 from signfree.analysis.cumulant import analyse_cumulant
 from signfree.analysis.results import (Analysis, ResultTable, Row, density_rises_at_edge,
@@ -63,6 +63,7 @@ def _analyse_fixed(density, mus, s):
     volume, parity, errors = s.volume, s.parity, s.errors
     bootstrap_samples, seed = s.bootstrap_samples, s.seed
     start = time.perf_counter()
+    progress.report(f"fitting the {model} model")
     central, neighbours, fit = smoothing_models(density, model, degree, parity)
     method = uncertainty.choose_method(density, errors, central.label)
     batch = [central] + neighbours
@@ -70,6 +71,7 @@ def _analyse_fixed(density, mus, s):
     if method in ("jackknife", "bootstrap"):
         if method == "bootstrap" and seed is None:
             seed = int(np.random.SeedSequence().entropy % (1 << 32))
+        progress.report(f"refitting the {method} resamples")
         values = uncertainty.resampled_values(density, method, bootstrap_samples, seed)
         resamples = uncertainty.resampled_models(density, central, values)
         if method == "jackknife":
@@ -180,6 +182,7 @@ def _analyse_per_mu(density, mus, s):
     degrees = candidate_degrees(density.kind, n_fit, fit.model.parity)
     i = degrees.index(fit.model.degree)
     window = degrees[max(0, i - 2): i + 5]
+    progress.report("per-mu degree: trying degrees", detail=", ".join(map(str, window)))
     runs = {d: _analyse_fixed(density, mus, s.with_(model="chebyshev", degree=d,
                                                     parity=fit.model.parity))
             for d in window}

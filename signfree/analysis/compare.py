@@ -20,6 +20,8 @@ from dataclasses import dataclass, field
 
 import mpmath
 
+from signfree import progress
+
 from signfree.analysis.analyse import analyse
 from signfree.analysis.cumulant import convergence_radius, cumulant_rows, cumulant_source
 from signfree.analysis.results import error_string, format_mu
@@ -160,6 +162,7 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
     routes = {}
     notes = sample_notes + list(fit.notes)
     for degree in [chosen.degree] + _neighbour_degrees(density, chosen):
+        progress.report(f"route chebyshev:{degree}")
         result = analyse(density, mus, model="chebyshev", degree=degree, digits=digits,
                          parity=chosen.parity)
         routes[result.model.label] = result.table.rows
@@ -167,6 +170,7 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
     top = max_cumulant_order - max_cumulant_order % 2
     kappa, kappa_err, source = cumulant_source(data, density, chosen, top + 2)
     if radius == "auto":
+        progress.report("radius of convergence: zeros of Z near the scan")
         radius, zero_notes = convergence_radius(chosen, mus)
         notes.extend(zero_notes)
     for K in range(2, top + 1, 2):
@@ -175,6 +179,7 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
                            parity=chosen.parity)
         nxt = cm.next_order_model()
         routes[cm.label] = cumulant_rows(cm, nxt, mus, radius=radius, digits=digits)
+    progress.report("route piecewise")
     pw = analyse(density, mus, model="piecewise", digits=digits)
     routes["piecewise"] = pw.table.rows
     info = {"cumulants_from": source, "notes": notes,

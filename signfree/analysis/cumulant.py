@@ -8,7 +8,7 @@ from dataclasses import dataclass
 
 import mpmath
 
-from signfree import engine
+from signfree import engine, progress
 from signfree.analysis.results import Analysis, ResultTable, Row
 from signfree.analysis.zeros import ContourError, count_zeros, find_zeros
 from signfree.engine.moments import model_cumulants
@@ -151,6 +151,7 @@ def analyse_cumulant(density, mus, s, samples=None):
     cm = CumulantModel(kappa=tuple(kappa), order=order, parity=fit.model.parity,
                        kappa_err=None if kappa_err is None else tuple(kappa_err))
     nxt = cm.next_order_model()
+    progress.report("radius of convergence: zeros of Z near the scan")
     radius, notes = convergence_radius(fit.model, mus)
     rows = cumulant_rows(cm, nxt, mus, radius=radius, digits=digits)
     volume = volume if volume is not None else density.volume

@@ -64,6 +64,16 @@ def add_output_options(p, several=False):
                         "files of the same names")
 
 
+def add_figure_options(p):
+    """--theta: the symbol of the field on the figures' axes."""
+    p.add_argument("--theta", action="store_true",
+                   help="label the field theta instead of mu on the figures (a theta term)")
+
+
+def figure_field(args):
+    return "theta" if getattr(args, "theta", False) else "mu"
+
+
 def output_folder(args, prefix):
     """The folder a command will write to, checked before anything is
     computed: --out, else a new ``prefix-<date>-<time>`` folder. Raises

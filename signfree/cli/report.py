@@ -3,9 +3,9 @@
 ``--zeros BOX`` add the comparison of the routes and the zeros of Z(mu)."""
 
 from signfree.cli.display import ProgressLine
-from signfree.cli.options import (INPUT_HELP, add_analysis_options, add_output_options,
-                                  handler, output_folder, read_reference,
-                                  settings_from_args)
+from signfree.cli.options import (INPUT_HELP, add_analysis_options, add_figure_options,
+                                  add_output_options, figure_field, handler, output_folder,
+                                  read_reference, settings_from_args)
 from signfree.cli.run import run_files
 
 HELP = 'analysis with figures and an offline HTML report'
@@ -30,8 +30,7 @@ def add_parser(subparsers):
     p.add_argument("--zeros", metavar="RE0:RE1,IM0:IM1",
                    help="add the zeros of Z(mu) in this box of the complex mu plane, with "
                         "their figure; writes zeros.csv too")
-    p.add_argument("--theta", action="store_true",
-                   help="label the field theta instead of mu in the figures (a theta term)")
+    add_figure_options(p)
     add_output_options(p)
     p.add_argument("--quiet", action="store_true", help="no progress line")
     p.set_defaults(handler=cmd_report)
@@ -81,7 +80,7 @@ def report_outputs(args):
             raise ValueError(f"{exc}; try a slightly different --zeros box") from None
         extra["zeros.csv"] = csv_text(ZeroResult.COLUMNS, zeros.records())
     files = report_files(result, files, reference, comparison=comparison, zeros=zeros,
-                         field="theta" if args.theta else "mu")
+                         field=figure_field(args))
     files.update(extra)
     return result, files
 

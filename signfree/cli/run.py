@@ -6,8 +6,9 @@ import sys
 from pathlib import Path
 
 from signfree.cli.display import ProgressLine
-from signfree.cli.options import (INPUT_HELP, add_analysis_options, add_output_options, fail,
-                                  handler, output_folder, settings_from_args)
+from signfree.cli.options import (INPUT_HELP, add_analysis_options, add_figure_options,
+                                  add_output_options, fail, figure_field, handler,
+                                  output_folder, settings_from_args)
 from signfree.report.outputs import analyse_file, report_text
 
 HELP = "analyse density or sample files"
@@ -25,6 +26,7 @@ def add_parser(sub):
     run.add_argument("--quiet", action="store_true", help="no progress line")
     run.add_argument("--plots", action="store_true",
                      help="also write the figures (fig_fit, fig_phase, fig_depth as PNG and PDF)")
+    add_figure_options(run)
     run.set_defaults(handler=cmd_run)
     return run
 
@@ -54,7 +56,7 @@ def _analyse_one(job):
         return path, None, str(exc)
     if getattr(args, "plots", False):
         from signfree.report.figures import figures_files
-        files.update(figures_files(result))
+        files.update(figures_files(result, field=figure_field(args)))
     return path, report_text(result), files
 
 
