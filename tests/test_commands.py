@@ -240,3 +240,37 @@ def test_progress_line_says_which_stage_and_which_mu(monkeypatch):
         progress.report("integrating")
     assert quiet.getvalue() == ""
     assert not progress._listeners
+
+
+def readme_synopsis():
+    """{command: set of --options} from the README's synopsis block."""
+    text = (ROOT / "README.md").read_text()
+    block = text.split("## Running it", 1)[1].split("```", 2)[1]
+    out, current = {}, None
+    for line in block.splitlines():
+        words = line.split()
+        if len(words) > 1 and words[0] == "signfree":
+            current = words[1]
+            out[current] = set()
+        if current:
+            out[current] |= {w.strip("[]").split("=")[0] for w in words if
+                             w.strip("[]").startswith("--")}
+    return out
+
+
+def test_readme_synopsis_and_help_list_the_same_options():
+    import argparse
+    from signfree.cli import COMMANDS, build_parser
+    synopsis = readme_synopsis()
+    assert set(synopsis) == set(COMMANDS)
+    for command in COMMANDS:
+        parser = build_parser([command])
+        sub = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction))
+        options = {o for action in sub.choices[command]._actions for o in action.option_strings
+                   if o.startswith("--") and o != "--help"}
+        assert synopsis[command] == options, command
+        # every choice of --model and --kind is named in the README synopsis or text
+        for action in sub.choices[command]._actions:
+            if action.option_strings and action.option_strings[0] in ("--model", "--kind"):
+                text = (ROOT / "README.md").read_text()
+                assert all(choice in text for choice in action.choices)

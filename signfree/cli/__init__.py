@@ -13,6 +13,7 @@ alone costs about a second of start-up). Every user mistake gives one line
 on stderr and exit status 2, Ctrl-C gives one line and exit status 130, and
 in both cases nothing is written.
 """
+import argparse
 import importlib
 import os
 import sys
@@ -27,15 +28,25 @@ COMMANDS = {
     "compare": ("signfree.cli.compare", "Chebyshev, cumulant and piecewise routes side by side"),
     "report": ("signfree.cli.report", "analysis with figures and an offline HTML report"),
 }
+EPILOG = """\
+inputs:   text (comma-, semicolon- or whitespace-separated), .npy/.npz, FILE.h5:/group/dataset
+kinds:    slopes (d ln rho/dq per interval), log_density (ln rho on a grid),
+          histogram (counts per bin), samples (a time series of q)
+models:   chebyshev (default), piecewise, cumulant (--order K)
+exit:     0 done, 2 bad input or option (one line on stderr), 130 interrupted
+
+'signfree COMMAND --help' lists the options of a command; 'signfree demo' runs the
+shipped example."""
 # options whose value may start with a minus sign (--mu -1:1:5, --box -3:3,-1:1)
-SIGNED_VALUES = ("--mu", "--box")
+SIGNED_VALUES = ("--mu", "--box", "--zeros")
 
 
 def build_parser(argv=None):
     """The argument parser, with the full options of the command named in
     ``argv`` (default: sys.argv) and a placeholder for every other one."""
     parser = Parser(prog="signfree", description="Phase factors and free-energy "
-                    "differences from a measured density of states.")
+                    "differences from a measured density of states.", epilog=EPILOG,
+                    formatter_class=argparse.RawDescriptionHelpFormatter)
     sub = parser.add_subparsers(dest="command", required=True, parser_class=Parser)
     argv = sys.argv[1:] if argv is None else argv
     wanted = next((a for a in argv if not a.startswith("-")), None)

@@ -50,7 +50,9 @@ INPUT_HELP = ("input file: CSV or whitespace/semicolon-separated text, .npy/.npz
               "dataset FILE.h5:/group/dataset (kind slopes, log_density, histogram or "
               "samples)")
 MU_HELP = ("mu values: a comma list (0.1,0.5,1) or start:stop:count (count values, both "
-           "ends included)")
+           "ends included); a list starting with a minus sign may follow --mu directly")
+KIND_HELP = ("input kind (overrides metadata): slopes (d ln rho/dq per interval), log_density "
+             "(ln rho on a grid), histogram (counts per bin) or samples (a time series of q)")
 
 
 def add_output_options(p, several=False):
@@ -91,7 +93,7 @@ def add_input_options(p, symmetry=True):
     """--kind (and --symmetry): how to read an input file, shared by every
     command that reads one."""
     p.add_argument("--kind", choices=("slopes", "log_density", "histogram", "samples"),
-                   help="input kind (overrides metadata)")
+                   help=KIND_HELP)
     if symmetry:
         p.add_argument("--symmetry", choices=("even", "odd", "none"),
                        help="parity of ln rho (overrides metadata; default: detect)")

@@ -51,7 +51,8 @@ ERROR_TEXT = [
     ("delta_f", "The free-energy density difference -ln|Z(mu)/Z(0)| / V (needs a volume), "
      "with its statistical error delta_f_err."),
     ("naive_samples", "The number of phase-quenched samples direct reweighting would need "
-     "for the same relative error, about 1 / (r^2 |Z(mu)/Z(0)|^2) for relative error r."),
+     "for the same error: (1 - |Z(mu)/Z(0)|^2) / (r^2 |Z(mu)/Z(0)|^2) for relative error r "
+     "(the phase has variance 1 - |Z/Z0|^2), at least 1."),
     ("horizon", "The largest mu of the scan up to which every value is resolved and stays "
      "at least two total errors away from zero, with the error source that ends it."),
 ]
@@ -76,13 +77,14 @@ dl.terms dt { font-weight: 600; font-family: ui-monospace, monospace; margin-top
 dl.terms dd { margin-left: 1.5em; }
 .figures { display: flex; flex-wrap: wrap; gap: 1.5em; }
 figure { margin: 0; max-width: 100%; }
-figure img { width: 510px; max-width: 100%; height: auto; border: 1px solid #eee; }
-figcaption { font-size: 0.9em; color: #444; max-width: 510px; }
+figure img { width: 490px; max-width: 100%; height: auto; border: 1px solid #eee; }
+figcaption { font-size: 0.9em; color: #444; max-width: 490px; }
 .scroll { overflow-x: auto; max-width: 100%; }
 #results .scroll { max-height: 32em; overflow-y: auto; }
-table { border-collapse: collapse; font-size: 0.85em; }
-th, td { padding: 0.2em 0.6em; border-bottom: 1px solid #e4e4e4; text-align: right;
+table { border-collapse: collapse; font-size: 0.8em; }
+th, td { padding: 0.2em 0.45em; border-bottom: 1px solid #e4e4e4; text-align: right;
          white-space: nowrap; }
+th { white-space: normal; vertical-align: bottom; }
 th { background: #f0f0f0; position: sticky; top: 0; }
 td.text, th.text { text-align: left; white-space: normal; }
 td.num { font-family: ui-monospace, "DejaVu Sans Mono", monospace; }
@@ -171,7 +173,7 @@ def _lead_columns(columns, first=("model", "mu", "status")):
 
 def _table(columns, records, table_id, status_key="status"):
     head = "".join(f'<th scope="col" class="{"text" if c in TEXT_COLUMNS else "num"}">'
-                   f'{_e(c)}</th>' for c in columns)
+                   f'{_e(c).replace("_", "_<wbr>")}</th>' for c in columns)
     body = []
     for rec in records:
         cells = []
@@ -342,7 +344,7 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
     for name, fig in figures.items():
         caption = FIGURE_CAPTIONS.get(name, name)
         parts.append(f'<figure id="fig-{_e(name)}"><img src="{_png_data_uri(fig)}" '
-                     f'alt="{_e(name)} figure" width="510">'
+                     f'alt="{_e(name)} figure" width="490">'
                      f"<figcaption><b>{_e(name)}.</b> {_e(caption)}</figcaption></figure>")
     parts.append("</div></section>")
 
@@ -354,8 +356,10 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
         i = columns.index("avg_phase") + 1 if "avg_phase" in columns else len(columns)
         columns.insert(i, "reference")
         records = [dict(rec, reference=refs.get(k, "")) for k, rec in enumerate(records)]
-    parts.append("<p>As in results.csv; a dash marks an empty entry (no supported digit, or "
-                 "an error that was not computed).</p>")
+    parts.append("<p>As in results.csv, with the values rounded to the digits their total "
+                 "error supports (results.csv keeps two guard digits more, for further fits); "
+                 "a dash marks an empty entry (no supported digit, or an error that was not "
+                 "computed).</p>")
     parts.append(_table(columns, records, "results-table"))
     parts.append("</section>")
 
