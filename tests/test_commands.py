@@ -127,6 +127,11 @@ def test_samples_input_with_every_route(tmp_path, samples_file):
     status, out, err = call("compare", samples_file, "--mu", "0:0.6:4", "--out", "c",
                             cwd=tmp_path)
     assert status == 0, err
+    status, out, err = call("report", samples_file, "--mu", "0:0.6:4", "--out", "r",
+                            cwd=tmp_path)
+    assert status == 0, err
+    page = (tmp_path / "r" / "report.html").read_text()
+    assert "samples (4000 values binned into" in page and "histogram data" not in page
 
 
 @pytest.mark.parametrize("argv, words", [

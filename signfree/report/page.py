@@ -309,7 +309,10 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
         f"<title>{_e(title)}</title>", f"<style>{CSS}</style>", "</head>", "<body>", "<main>",
         f"<h1>Z(&mu;)/Z(0) from {_e(source)}</h1>",
     ]
-    lead = (f"{density.kind} data, {density.n_points} points on q in "
+    samples = getattr(analysis, "samples", None)
+    what = (f"samples ({len(samples.q)} values binned into {density.n_points} bins)"
+            if samples is not None else f"{density.kind} data, {density.n_points} points")
+    lead = (f"{what} on q in "
             f"[{density.domain[0]:g}, {density.domain[1]:g}]; {len(mus)} values of mu"
             + (f" from {min(mus):g} to {max(mus):g}" if mus else "") + "; statuses: "
             + ", ".join(f"{v} {k}" for k, v in counts.items() if v) + ".")
