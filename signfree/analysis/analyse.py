@@ -14,7 +14,7 @@ import time
 import mpmath
 import numpy as np
 
-from signfree import engine
+from signfree import engine, progress
 from signfree.analysis import budget, observables, uncertainty
 from signfree.analysis.cumulant import analyse_cumulant
 from signfree.analysis.results import Analysis, ResultTable, Row, density_rises_at_edge
@@ -70,6 +70,7 @@ def analyse(density, mus, settings=None, samples=None, **changes):
 def _analyse_fixed(density, mus, s):
     """The Chebyshev or piecewise path at one degree (given or chosen)."""
     start = time.perf_counter()
+    progress.report(f"fitting the {s.model} model")
     central, neighbours, fit = smoothing_models(density, s.model, s.degree, s.parity)
     method = uncertainty.choose_method(density, s.errors, central.label)
     seed = s.seed
@@ -84,6 +85,7 @@ def _analyse_fixed(density, mus, s):
     if method in ("jackknife", "bootstrap"):
         if method == "bootstrap" and seed is None:
             seed = int(np.random.SeedSequence().entropy % (1 << 32))
+        progress.report(f"refitting the {method} resamples")
         values = uncertainty.resampled_values(density, method, s.bootstrap_samples, seed,
                                               fit.sigma if fit is not None else None)
         resamples = uncertainty.resampled_models(density, central, values, correction)
@@ -182,8 +184,9 @@ def _analyse_fixed(density, mus, s):
     else:
         info["model_err_against"] = "piecewise through every other knot"
     if method == "none":
-        info["notes"].append("no replicas and no per-point errors: no statistical error "
-                             "(avg_phase_err is empty), so the horizon rests on the other errors")
+        why = ("--errors none" if s.errors == "none" else "no replicas and no per-point errors")
+        info["notes"].append(f"{why}: no statistical error (avg_phase_err is empty), so the "
+                             "horizon rests on the other errors")
     if density_rises_at_edge(central):
         info["notes"].append("ln rho does not fall towards an end of the data range: the range "
                              "cuts off part of the density and edge_err is large")
@@ -192,7 +195,8 @@ def _analyse_fixed(density, mus, s):
     table = ResultTable(rows=rows, model_label=central.label, volume=volume, info=info)
     info["horizon"] = table.horizon()
     return Analysis(density=density, model=central, fit=fit, transform=tr, table=table,
-                    seconds=time.perf_counter() - start)
+                    seconds=time.perf_counter() - start,
+                    replica_rows=(method, len(batch), n_res) if resamples else None)
 
 
 def _structure(density, model, fit, values, mus):
@@ -243,6 +247,7 @@ def _analyse_per_mu(density, mus, s):
     degrees = candidate_degrees(density.kind, n_fit, fit.model.parity)
     i = degrees.index(fit.model.degree)
     window = degrees[max(0, i - 2): i + 5]
+    progress.report("per-mu degree: trying degrees", detail=", ".join(map(str, window)))
     runs = {d: _analyse_fixed(density, mus, s.with_(model="chebyshev", degree=d,
                                                     parity=fit.model.parity))
             for d in window}

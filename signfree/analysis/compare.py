@@ -20,6 +20,8 @@ from dataclasses import dataclass, field
 
 import mpmath
 
+from signfree import progress
+
 from signfree.analysis.analyse import analyse
 from signfree.analysis.cumulant import convergence_radius, cumulant_rows, cumulant_source
 from signfree.analysis.results import error_string, format_mu
@@ -58,7 +60,7 @@ class Comparison:
                     "avg_phase_imag": r.avg_phase_imag,
                     "avg_phase_err": error_string(r.stat_err),
                     "total_err": error_string(r.total_err),
-                    "cancel_orders": f"{r.cancel_orders:.2f}",
+                    "cancel_orders": "" if r.cancel_orders is None else f"{r.cancel_orders:.2f}",
                     "model_err": error_string(r.model_err),
                     "status": r.status,
                 })
@@ -161,6 +163,7 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
     notes = sample_notes + list(fit.notes)
     chosen_rows = None
     for degree in [chosen.degree] + _neighbour_degrees(density, chosen):
+        progress.report(f"route chebyshev:{degree}")
         result = analyse(density, mus, model="chebyshev", degree=degree, digits=digits,
                          parity=chosen.parity)
         routes[result.model.label] = result.table.rows
@@ -171,6 +174,7 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
     kappa, kappa_err, source = cumulant_source(data, density, fit, top + 2)
     lower = None
     if radius == "auto":
+        progress.report("radius of convergence: zeros of Z near the scan")
         radius, lower, zero_notes = convergence_radius(fit, density, mus)
         notes.extend(zero_notes)
     for K in range(2, top + 1, 2):
@@ -179,6 +183,7 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
                            parity=chosen.parity)
         routes[cm.label] = cumulant_rows(cm, mus, reference=chosen_rows, radius=radius,
                                          digits=digits)
+    progress.report("route piecewise")
     pw = analyse(density, mus, model="piecewise", digits=digits)
     routes["piecewise"] = pw.table.rows
     info = {"cumulants_from": source, "notes": notes,

@@ -75,6 +75,9 @@ class Settings:
             object.__setattr__(self, "observables", items)
         if self.observables:
             parse_observables(self.observables)
+        if self.degree is not None and self.model != "chebyshev":
+            raise ValueError(f"--degree {self.degree}: the degree applies only to the "
+                             f"Chebyshev model, not to --model {self.model}")
 
     def with_(self, **changes):
         """A copy with some fields changed (checked again)."""

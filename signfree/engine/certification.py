@@ -8,6 +8,7 @@ import mpmath
 import numpy as np
 from flint import acb, arb, ctx
 
+from signfree import progress
 from signfree.engine.balls import abs_mid, arb_of as _arb, relative_radius as _relative_radius, upper
 
 
@@ -41,6 +42,7 @@ def certified(models, mus, digits, estimate, prec):
             z0 = integral(0, arb(2) ** (-prec))
             row_v, row_q = [], []
             for k, mu in enumerate(mus):
+                progress.report("certifying by acb.integral: mu", k + 1, len(mus))
                 mag = abs_mid(estimate[0][k])
                 tol = arb(mpmath.nstr(mag * mpmath.mpf(10) ** (-(digits + 3)), 5)) \
                     if mag > 0 else arb(2) ** (-prec)

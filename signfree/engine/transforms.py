@@ -30,6 +30,7 @@ import mpmath
 import numpy as np
 from flint import acb, acb_mat, arb, arb_mat, ctx
 
+from signfree import progress
 from signfree.engine.balls import (MAX_NODES, MAX_PREC, abs_mid, arb_of as _arb, as_fractions,
                                    difference, exp_i as _exp_i, precision_bits,
                                    relative_radius as _relative_radius, uniform_step, upper)
@@ -296,6 +297,7 @@ def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
         chebyshev_matrix(n, max(precs), max(degree, max(grad_ks, default=0)))
         gauss_legendre(_on_ladder(1.5 * n), max(precs))
 
+        progress.report("integrating", detail=f"{K} mu, {n} nodes, {max(precs)} bits")
         todo = [c for c in range(len(chunks))
                 if results[c] is None or results[c][0] != (n, precs[c])]
         if todo:

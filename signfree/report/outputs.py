@@ -23,6 +23,7 @@ def analyse_file(input_path, mu_spec, settings, kind=None, volume=None, symmetry
     density, samples, sample_notes = load(input_path, kind=kind, volume=volume,
                                           symmetry=symmetry)
     result = analyse(density, mus, settings, samples=samples)
+    result.samples = samples
     result.table.info["notes"][:0] = list(sample_notes)
     if samples is not None:
         err, tau, n_eff = binned_error(samples.q, samples.weights)
@@ -49,7 +50,8 @@ def analyse_file(input_path, mu_spec, settings, kind=None, volume=None, symmetry
         "run_seconds": round(time.perf_counter() - start, 3),
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
     }
-    files = {"results.csv": csv_text(table.columns(), table.records()),
+    files = {"results.csv": csv_text(table.columns(),
+                                     table.records(guard=table.GUARD_DIGITS)),
              "summary.json": json_text(summary)}
     check = getattr(result.observables, "check", None)
     if check is not None:
@@ -65,7 +67,7 @@ def print_report(result, folder, reference=None, out=sys.stdout):
     fit = ""
     if info.get("chi2_per_dof") is not None:
         fit = f", chi2/dof = {info['chi2_per_dof']:.3g} ({info['degree_criterion']})"
-    print(f"{result.density.source}: {result.density.kind}, {result.density.n_points} points; "
+    print(f"{result.density.source}: {input_text(result)}; "
           f"model {info['model']} parity {info['parity']}{fit}", file=out)
     print(f"integration: {info['integration']}, {info['precision_digits']} digits working "
           f"precision, {info['nodes']} nodes, {result.seconds:.2f} s", file=out)
@@ -94,6 +96,16 @@ def observables_text(obs):
     if obs.check is not None:
         parts.append(obs.check.line())
     return "\n".join(parts)
+
+
+def input_text(result):
+    """What was read, in a few words: 'slopes, 96 points', or for raw
+    samples 'samples, 100000 values binned into 59 bins'."""
+    density, samples = result.density, getattr(result, "samples", None)
+    if samples is not None:
+        return (f"samples, {len(samples.q)} values binned into {density.n_points} "
+                f"{density.metadata.get('binning', '')} bins").replace("  ", " ")
+    return f"{density.kind}, {density.n_points} points"
 
 
 def horizon_line(h):
