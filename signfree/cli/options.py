@@ -59,6 +59,22 @@ def add_analysis_options(p):
                    help="rigorous enclosures by acb.integral per point (slower)")
 
 
+def add_volume_options(p):
+    """--volume-order: the fit in 1/V of the infinite-volume limit."""
+    p.add_argument("--volume-order", type=_volume_order, default="auto", metavar="auto|P",
+                   help="powers of 1/V fitted for the infinite-volume limit (default auto: "
+                        "the smallest order consistent with the errors, per mu)")
+
+
+def _volume_order(text):
+    if text == "auto":
+        return text
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected 'auto' or an integer, got {text!r}")
+
+
 def _degree(text):
     if text == "per-mu":
         return text
@@ -91,6 +107,7 @@ def settings_from_args(args):
         "errors": getattr(args, "errors", None),
         "bootstrap_samples": getattr(args, "bootstrap", None), "seed": getattr(args, "seed", None),
         "order": getattr(args, "order", None),
+        "volume_order": getattr(args, "volume_order", None),
     }
     return Settings(**{k: v for k, v in given.items() if v is not None})
 
