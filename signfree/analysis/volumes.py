@@ -47,6 +47,7 @@ from signfree.analysis.results import format_mu
 
 MAX_ORDER = 2
 P_MIN = 0.05
+FLOAT_FLOOR = 8 * np.finfo(float).eps
 LIMIT_STATUSES = ("ok", "poor_fit", "volume_not_ok", "past_horizon", "volume_missing",
                   "too_few_volumes")
 POINT_COLUMNS = ("mu", "volume", "delta_f", "delta_f_err", "status", "past_horizon")
@@ -170,6 +171,7 @@ class InverseVolumeFit:
     weights: np.ndarray
     chi2: float
     dof: int
+    errors: np.ndarray = None   # the errors used (after the double-precision floor)
 
     @property
     def p_value(self):
@@ -179,9 +181,9 @@ class InverseVolumeFit:
         from scipy.special import gammaincc
         return float(gammaincc(self.dof / 2, self.chi2 / 2))
 
-    def error(self, errors):
+    def error(self):
         """sum_j |a_j| err_j, scaled by sqrt(chi^2/dof) when above 1."""
-        bound = float(np.abs(self.weights) @ np.asarray(errors, float))
+        bound = float(np.abs(self.weights) @ self.errors)
         if self.dof > 0 and self.chi2 > self.dof:
             bound *= math.sqrt(self.chi2 / self.dof)
         return bound
@@ -189,11 +191,13 @@ class InverseVolumeFit:
 
 def fit_inverse_volume(volumes, values, errors, order):
     """Fit Delta f_V = f_inf + sum_{k<=order} d_k (V_min/V)^k with weights
-    1/err^2 (by the pseudo-inverse of the error-scaled design matrix, never
-    squaring the weights, so that errors far below 1e-150 stay safe)."""
+    1/err^2, by the pseudo-inverse of the error-scaled design matrix (the
+    weights are never squared). The fit runs in double precision, so an error
+    below FLOAT_FLOOR times the largest |Delta f| is raised to that."""
     v = np.asarray(volumes, float)
     y = np.asarray(values, float)
-    s = np.maximum(np.asarray(errors, float), 1e-300)
+    floor = FLOAT_FLOOR * float(np.max(np.abs(y))) if y.size else 0.0
+    s = np.maximum(np.asarray(errors, float), max(floor, 1e-300))
     if order > len(v) - 1:
         raise ValueError(f"order {order} needs at least {order + 1} volumes")
     x = v.min() / v
@@ -203,7 +207,7 @@ def fit_inverse_volume(volumes, values, errors, order):
     coef = pinv @ (y * w)
     resid = (y - design @ coef) / s
     return InverseVolumeFit(order, float(coef[0]), pinv[0] * w, float(resid @ resid),
-                            len(v) - order - 1)
+                            len(v) - order - 1, s)
 
 
 def choose_order(volumes, values, errors, order="auto", max_order=MAX_ORDER):
@@ -379,5 +383,5 @@ def _limit_row(mu, pts, order, need, missing, max_order):
         status.append("poor_fit")
         reasons.append(f"chi2 = {fit.chi2:.3g} for {fit.dof} dof (P = {pval:.2g})")
     order_err = None if higher is None else abs(higher.intercept - fit.intercept)
-    return LimitRow(mu, fit.intercept, fit.error(errs), order_err, fit.order, fit.chi2,
+    return LimitRow(mu, fit.intercept, fit.error(), order_err, fit.order, fit.chi2,
                     fit.dof, pval, status[0] if status else "ok", "; ".join(reasons))
