@@ -88,6 +88,39 @@ def exact_delta_f(mu, b):
         return -mpmath.log(abs(single / mpmath.besseli(0, b)))
 
 
+README = f"""\
+# Sweep data (synthetic)
+
+These files are synthetic and exist only to demonstrate and test signfree's
+sweeps and infinite-volume limits.
+
+Independent planar rotors, charge q = sum sin(theta), at couplings b =
+{", ".join(f"{b:g}" for b in COUPLINGS)} and volumes V = {", ".join(map(str, VOLUMES))}: one file
+per (b, V), rotors_b<b>_V<V>.csv, holding Robbins-Monro (LLR) slope estimates
+on unit intervals over |q| <= {REACH} V, {REPLICAS} replicas; each value is the exact
+fixed point of an ideal LLR iteration (signfree.scenarios.llr_slope) plus
+Gaussian noise of sd {NOISE}, from numpy.random.default_rng with seed
+7000 + 100 * round(10 b) + V.
+
+manifest.csv lists them with the coupling as the label b:
+
+    signfree sweep data/volumes/manifest.csv --mu 0:1.6:17
+
+The free-energy density of independent rotors does not depend on V:
+Delta f(mu) = -ln|I0(sqrt(b^2 - mu^2)) / I0(b)| (DLMF 10.32.1; J0 past mu = b,
+DLMF 10.27.6). exact.csv lists it for mu = 0, 0.05, ..., 2.
+
+Regenerate with `python scripts/make_volume_data.py`; the output is reproduced
+byte for byte.
+"""
+
+
+def write_readme():
+    with open(OUT / "README.md", "w", encoding="utf-8", newline="\n") as fh:
+        fh.write(README)
+    print(f"wrote {(OUT / 'README.md').relative_to(ROOT)}")
+
+
 def main():
     OUT.mkdir(parents=True, exist_ok=True)
     start = time.perf_counter()
@@ -104,6 +137,7 @@ def main():
         for mu in EXACT_MU:
             exact.append(f"{b:g},{mu},{mpmath.nstr(exact_delta_f(mu, b), 20)}")
     write(OUT / "exact.csv", exact)
+    write_readme()
     print(f"done in {time.perf_counter() - start:.1f} s")
 
 

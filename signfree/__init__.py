@@ -35,6 +35,10 @@ _API = {
     "compare": "signfree.analysis.compare",
     "make_figures": "signfree.report.figures",
     "html_report": "signfree.report.page",
+    "extrapolate": "signfree.analysis.volumes",
+    "free_energy_points": "signfree.analysis.volumes",
+    "run_sweep": "signfree.report.sweep",
+    "read_manifest": "signfree.report.manifest",
 }
 
 __all__ = sorted(_API)

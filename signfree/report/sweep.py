@@ -215,12 +215,24 @@ def _pool(jobs, scheduler, executor):
         try:
             yield pool
         except BaseException:
-            pool.shutdown(wait=False, cancel_futures=True)
+            _stop_processes(pool)
             raise
         else:
             pool.shutdown(wait=True)
         return
     yield _Inline()
+
+
+def _stop_processes(pool):
+    """Cancel what is queued and end the worker processes at once (their
+    work is lost, never half-written: only this process writes)."""
+    if hasattr(pool, "terminate_workers"):      # Python 3.14 and later
+        pool.terminate_workers()
+        return
+    processes = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for proc in processes:
+        proc.terminate()
 
 
 def connect(scheduler, timeout="15s"):
@@ -286,7 +298,9 @@ def _running_counter(executor, futures, dask):
             except Exception:  # noqa: BLE001 -- the display only
                 return None
         return count
-    return lambda: sum(1 for f in list(futures) if f.running())
+    # a process pool marks the calls queued for its workers as running too
+    cap = getattr(executor, "_max_workers", None) or len(futures) or 1
+    return lambda: min(cap, sum(1 for f in list(futures) if f.running()))
 
 
 # ---------------------------------------------------------------------------
