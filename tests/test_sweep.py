@@ -6,6 +6,7 @@ forms (Gradshteyn & Ryzhik 3.896.4 and DLMF 10.32.1; see test_volumes.py)."""
 import csv
 import io
 import os
+import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -24,6 +25,19 @@ def signfree(*args, cwd):
         [str(ROOT)] + ([os.environ["PYTHONPATH"]] if os.environ.get("PYTHONPATH") else [])))
     return subprocess.run([sys.executable, "-m", "signfree", *map(str, args)], cwd=cwd,
                           capture_output=True, text=True, timeout=600, env=env)
+
+
+def signfree_here(*args, cwd, capsys):
+    """The command in this process (for quick error paths): (status, stdout, stderr)."""
+    from signfree.cli import main
+    here = os.getcwd()
+    os.chdir(cwd)
+    try:
+        status = main([str(a) for a in args])
+    finally:
+        os.chdir(here)
+    out, err = capsys.readouterr()
+    return status, out, err
 
 
 def write_density(path, volume, tau2=0.0):
@@ -68,10 +82,20 @@ def check_limit_against_exact(rows, tau2):
     return ok
 
 
-def test_a_sweep_records_failures_resumes_and_keys_its_tables_by_the_labels(study, tmp_path):
-    out = tmp_path / "out"
+@pytest.fixture(scope="module")
+def swept(study, tmp_path_factory):
+    """The study swept once on two local processes: (output folder, the run)."""
+    out = tmp_path_factory.mktemp("swept") / "out"
     res = signfree("sweep", study / "manifest.csv", "--mu", MU, "--out", out, "--jobs", "2",
                    cwd=study)
+    return out, res
+
+
+def test_a_sweep_records_failures_resumes_and_keys_its_tables_by_the_labels(study, swept,
+                                                                            tmp_path):
+    first, res = swept
+    out = tmp_path / "out"
+    shutil.copytree(first, out)
     assert res.returncode == 1, res.stderr        # one ensemble failed; the sweep finished
     assert "tau2=40_V=64: FAILED" in res.stderr and "7/7 done" not in res.stderr
     assert "failed: tau2=40_V=64: " in res.stdout and "broken.csv:4:2" in res.stdout
@@ -118,11 +142,9 @@ def test_a_sweep_records_failures_resumes_and_keys_its_tables_by_the_labels(stud
     assert page.count('src="data:image/png;base64,') == 2 and "tau2 = 40" in page
 
 
-def test_the_combined_table_reads_into_pandas(study, tmp_path):
+def test_the_combined_table_reads_into_pandas(swept):
     pd = pytest.importorskip("pandas", reason="pandas is an optional extra")
-    out = tmp_path / "out"
-    res = signfree("sweep", study / "manifest.csv", "--mu", MU, "--out", out, "--jobs", "1",
-                   "--quiet", cwd=study)
+    out, res = swept
     assert res.returncode == 1, res.stderr
     frame = pd.read_csv(out / "sweep.csv")
     done = frame[frame["outcome"] == "done"].set_index(["tau2", "volume", "mu"])
@@ -162,7 +184,7 @@ def test_an_interrupted_sweep_leaves_complete_folders_only(study, tmp_path):
     assert list(result.outcomes.values()).count("done") == 5
 
 
-def test_bad_manifests_give_one_line_and_write_nothing(tmp_path):
+def test_bad_manifests_give_one_line_and_write_nothing(tmp_path, capsys):
     cases = {
         "name,volume\na.csv,8\n": "1: missing required column 'file'",
         "file,volume\na.csv,eight\n": "2:2: volume 'eight' is not a number",
@@ -175,26 +197,29 @@ def test_bad_manifests_give_one_line_and_write_nothing(tmp_path):
     }
     for text, message in cases.items():
         (tmp_path / "m.csv").write_text(text)
-        res = signfree("sweep", "m.csv", "--mu", MU, "--out", "out", cwd=tmp_path)
-        assert res.returncode == 2, text
-        lines = res.stderr.strip().splitlines()
+        status, _, err = signfree_here("sweep", "m.csv", "--mu", MU, "--out", "out",
+                                       cwd=tmp_path, capsys=capsys)
+        assert status == 2, text
+        lines = err.strip().splitlines()
         assert len(lines) == 1 and lines[0].startswith("signfree: m.csv")
         assert message in lines[0], (text, lines[0])
         assert not (tmp_path / "out").exists()
 
 
-def test_a_folder_that_is_not_this_sweeps_is_left_alone(study, tmp_path):
+def test_a_folder_that_is_not_this_sweeps_is_left_alone(study, tmp_path, capsys):
     (tmp_path / "mine").mkdir()
     (tmp_path / "mine" / "notes.txt").write_text("keep me")
-    res = signfree("sweep", study / "manifest.csv", "--mu", MU, "--out", tmp_path / "mine",
-                   cwd=tmp_path)
-    assert res.returncode == 2 and "is not a sweep folder" in res.stderr
+    status, _, err = signfree_here("sweep", study / "manifest.csv", "--mu", MU, "--out",
+                                   tmp_path / "mine", cwd=tmp_path, capsys=capsys)
+    assert status == 2 and "is not a sweep folder" in err
     assert sorted(p.name for p in (tmp_path / "mine").iterdir()) == ["notes.txt"]
     (tmp_path / "m.csv").write_text(f"file,volume\n{study / 't0_V8.csv'},8\n")
-    assert signfree("sweep", "m.csv", "--mu", "0,1", "--out", "s", "--quiet",
-                    cwd=tmp_path).returncode == 0
-    res = signfree("sweep", "m.csv", "--mu", "0,2", "--out", "s", cwd=tmp_path)
-    assert res.returncode == 2 and "other options (mu)" in res.stderr
+    status, _, err = signfree_here("sweep", "m.csv", "--mu", "0,1", "--out", "s", "--quiet",
+                                   "--jobs", "1", cwd=tmp_path, capsys=capsys)
+    assert status == 0, err
+    status, _, err = signfree_here("sweep", "m.csv", "--mu", "0,2", "--out", "s",
+                                   cwd=tmp_path, capsys=capsys)
+    assert status == 2 and "other options (mu)" in err
 
 
 def test_a_scheduler_without_dask_is_a_clear_error(monkeypatch, study, tmp_path):
@@ -273,10 +298,56 @@ def test_the_same_sweep_through_the_python_api_on_the_cluster(cluster, study, tm
     from distributed import Client
 
     from signfree.report.sweep import run_sweep
-    local = run_sweep(study / "manifest.csv", MU, tmp_path / "local", jobs=2)
+    local = run_sweep(study / "manifest.csv", MU, tmp_path / "local", jobs=1)
     with Client(cluster.scheduler_address) as client:
         remote = run_sweep(study / "manifest.csv", MU, tmp_path / "remote", executor=client)
     assert remote.outcomes == local.outcomes and remote.failed == ["tau2=40_V=64"]
     for name in ("sweep.csv", "ensembles.csv", "per_volume.csv", "infinite_volume.csv"):
         assert (tmp_path / "local" / name).read_bytes() == \
             (tmp_path / "remote" / name).read_bytes(), name
+
+
+def test_volumes_command_takes_inputs_at_several_volumes(study, tmp_path):
+    # exact limit sigma^2 mu^2/2 (GR 3.896.4); the inputs carry '# volume:' lines
+    files = [study / f"t0_V{v}.csv" for v in VOLUMES]
+    res = signfree("volumes", *files, "--mu", MU, "--out", "lim", "--jobs", "1", "--quiet",
+                   cwd=tmp_path)
+    assert res.returncode == 0, res.stderr
+    assert "infinite-volume limit from V = 8, 16, 32" in res.stdout
+    rows = read_csv(tmp_path / "lim" / "infinite_volume.csv")
+    assert check_limit_against_exact(rows, 0.0) == 11
+    assert sorted(p.name for p in (tmp_path / "lim" / "ensembles").iterdir()) == \
+        ["V=16", "V=32", "V=8"]
+    assert (tmp_path / "lim" / "fig_volumes.png").stat().st_size > 1000
+    # --volumes overrides the metadata: the same files read as V = 80, 160, 320 give
+    # Delta f ten times smaller at every volume, so the limit is a tenth
+    res = signfree("volumes", *files, "--volumes", "80,160,320", "--mu", "1", "--out",
+                   "tenth", "--quiet", "--volume-order", "1", cwd=tmp_path)
+    assert res.returncode == 0, res.stderr
+    row = read_csv(tmp_path / "tenth" / "infinite_volume.csv")[0]
+    assert abs(float(row["delta_f"]) - 0.05) <= float(row["total_err"]) and row["order"] == "1"
+
+
+def test_volumes_command_refuses_bad_inputs_before_writing(study, tmp_path, capsys):
+    good = [study / f"t0_V{v}.csv" for v in VOLUMES[:2]]
+    nov = tmp_path / "novolume.csv"
+    nov.write_text("# kind: log_density\nq,log_density\n-1,-1\n0,0\n1,-1\n")
+    cases = [
+        ((*good, study / "broken.csv"), "broken.csv:4:2: "),
+        ((*good, nov), "novolume.csv: no volume"),
+        ((*good,), None),                           # fine: two volumes
+        ((good[0], good[0]), "an input is given twice"),
+        ((good[0],), "at least two inputs"),
+    ]
+    for k, (inputs, message) in enumerate(cases):
+        status, _, err = signfree_here("volumes", *inputs, "--mu", "0,1", "--out", f"o{k}",
+                                       "--quiet", "--jobs", "1", cwd=tmp_path, capsys=capsys)
+        if message is None:
+            assert status == 0, err
+            continue
+        assert status == 2 and message in err, err
+        assert len(err.strip().splitlines()) == 1
+        assert not (tmp_path / f"o{k}").exists()
+    status, _, err = signfree_here("volumes", *good, "--volumes", "8", "--mu", "0,1", "--out",
+                                   "x", cwd=tmp_path, capsys=capsys)
+    assert status == 2 and "1 value(s) for 2 input(s)" in err

@@ -74,8 +74,9 @@ def execute(manifest, args, settings, prefix):
     return 1 if result.failed else 0
 
 
-def print_summary(result, out=sys.stdout):
+def print_summary(result, out=None):
     from signfree.report.collect import table_text
+    out = sys.stdout if out is None else out
     outcomes = list(result.outcomes.values())
     earlier = outcomes.count("skipped")
     text = (f"{len(outcomes)} ensembles: {outcomes.count('done') + earlier} complete"
