@@ -59,7 +59,8 @@ LIMIT_COLUMNS = ("mu", "delta_f", "total_err", "fit_err", "order_err", "order", 
 class VolumePoint:
     """Delta f_V at one mu: ``delta_f`` and its error bound ``err`` (floats,
     None when the row supports no digit), the row's status and whether mu
-    lies past the horizon of this volume. ``mu`` is its canonical text."""
+    lies past the horizon of this volume. ``mu`` is its canonical text;
+    ``text`` the (value, error) strings it was read from, if it was."""
 
     mu: str
     volume: float
@@ -67,6 +68,7 @@ class VolumePoint:
     err: float = None
     status: str = "ok"
     past_horizon: bool = False
+    text: tuple = None
 
 
 def free_energy_points(table, volume=None):
@@ -140,7 +142,7 @@ def point_records(points):
     """Rows of per_volume.csv / delta_f.csv."""
     out = []
     for p in points:
-        value, err = value_and_error(p.delta_f, p.err)
+        value, err = p.text or value_and_error(p.delta_f, p.err)
         out.append({"mu": p.mu, "volume": f"{p.volume:.15g}", "delta_f": value,
                     "delta_f_err": err, "status": p.status,
                     "past_horizon": "yes" if p.past_horizon else "no"})
@@ -153,7 +155,8 @@ def points_from_records(records):
     for rec in records:
         df, err = read_back(rec["delta_f"], rec["delta_f_err"])
         out.append(VolumePoint(rec["mu"], float(rec["volume"]), df, err, rec["status"],
-                               rec["past_horizon"] == "yes"))
+                               rec["past_horizon"] == "yes",
+                               (rec["delta_f"], rec["delta_f_err"])))
     return out
 
 

@@ -196,8 +196,9 @@ class _Inline:
 
 @contextmanager
 def _pool(jobs, scheduler, executor):
-    """(executor, owned): a given executor, a Dask client of a scheduler
-    address or file, local processes, or inline work for one job."""
+    """The executor of a sweep: the one given, a Dask client of a scheduler
+    address or file (closed afterwards), local processes (ended at once on
+    an interruption), or work in this process for one job."""
     if executor is not None:
         yield executor
         return
@@ -237,8 +238,8 @@ def _stop_processes(pool):
 
 def connect(scheduler, timeout="15s"):
     """A ``distributed.Client`` of a scheduler address (tcp://host:8786) or
-    of a scheduler file (JSON, as dask-jobqueue and ``dask scheduler
-    --scheduler-file`` write); ValueError with the reason when it fails."""
+    of a scheduler file (JSON, as ``dask scheduler --scheduler-file`` and
+    dask-mpi write); ValueError with the reason when it fails."""
     try:
         from distributed import Client
     except ImportError:

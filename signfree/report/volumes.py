@@ -11,9 +11,11 @@ import numpy as np
 
 from signfree.analysis.volumes import LIMIT_STATUSES
 from signfree.report.figures import write_figures
-from signfree.report.page import CSS, _e, _png_data_uri, _table
+from signfree.report.page import CSS, TEXT_COLUMNS, _e, _png_data_uri, _table
 from signfree.report.style import _C, GREY, STYLE, _new_figure, _outside_legend
 
+WORDS = TEXT_COLUMNS + ("reason", "failure", "file", "ensemble", "outcome",
+                        "horizon_reason")
 VOLUME_COLOURS = [_C["blue"], _C["vermillion"], _C["green"], _C["purple"], _C["orange"],
                   _C["sky_blue"], _C["yellow"]]
 MARKERS = ["o", "s", "^", "D", "v", "P", "X"]
@@ -32,6 +34,8 @@ LIMIT_TEXT = {
 }
 
 EXTRA_CSS = """
+table[id^="limit-"] td.text:last-child { min-width: 30em; }
+#ensembles-table td.text:nth-child(-n+2) { min-width: 8em; }
 tr.status-poor_fit td { background: #f7ecf3; }
 tr.status-volume_not_ok td, tr.status-past_horizon td { background: #fbeee6; }
 tr.status-volume_missing td, tr.status-too_few_volumes td, tr.status-failed td {
@@ -167,7 +171,7 @@ def _group_section(title, limit, note, figure, anchor):
                    "Delta f_inf, the finite-size correction.</figcaption></figure>")
     wide = _wide_records(limit)
     if wide:
-        out.append(_table(list(wide[0]), wide, f"limit-{anchor}"))
+        out.append(_table(list(wide[0]), wide, f"limit-{anchor}", text_columns=WORDS))
     out.append("</section>")
     return "\n".join(out)
 
@@ -203,7 +207,8 @@ def sweep_page(result, ensemble_records, limits, notes, figures):
                                                         "horizon_mu", "horizon_reason",
                                                         "ok_rows", "rows")
                                             if c not in ensemble_records[0]]
-        parts.append(_table(cols, ensemble_records, "ensembles-table", status_key="outcome"))
+        parts.append(_table(cols, ensemble_records, "ensembles-table", status_key="outcome",
+                            text_columns=WORDS))
     parts.append("</section>")
     parts.append('<section id="method"><h2>How the limit is taken</h2><dl class="terms">')
     method = [
