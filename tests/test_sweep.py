@@ -140,6 +140,7 @@ def test_a_sweep_records_failures_resumes_and_keys_its_tables_by_the_labels(stud
     assert all(r["status"] != "volume_missing" for r in forty)
     page = (out / "report.html").read_text()
     assert page.count('src="data:image/png;base64,') == 2 and "tau2 = 40" in page
+    assert "http" not in page and "<script" not in page     # self-contained, offline
 
 
 def test_the_combined_table_reads_into_pandas(swept):

@@ -63,6 +63,7 @@ class Manifest:
     source: str
     label_names: tuple
     ensembles: tuple
+    command: str = "sweep"      # what made it: 'sweep' (a file) or 'volumes' (inputs)
 
     def group_name(self, group):
         """A folder-safe name of a group of label values ('all' without labels)."""
@@ -144,7 +145,7 @@ def manifest_of_files(files, volumes=None, kind=None, symmetry=None):
         out.append(Ensemble("", f, Path(f).resolve(), (), v, kind, symmetry, None))
     if volumes is not None and len(set(volumes)) != len(volumes):
         raise ValueError("--volumes: a volume is given twice")
-    return Manifest("(command line)", (), tuple(_named(out)))
+    return Manifest(", ".join(Path(f).name for f in files), (), tuple(_named(out)), "volumes")
 
 
 def _named(ensembles):
@@ -212,4 +213,5 @@ def check_inputs(manifest, kind=None, symmetry=None, volume=None):
         if v in vols[:i]:
             raise ValueError(f"{filled[i].file} and {filled[vols.index(v)].file} have the "
                              f"same volume {v:g}")
-    return Manifest(manifest.source, manifest.label_names, tuple(_named(filled)))
+    return Manifest(manifest.source, manifest.label_names, tuple(_named(filled)),
+                    manifest.command)

@@ -185,7 +185,7 @@ def sweep_page(result, ensemble_records, limits, notes, figures):
     done = sum(1 for o in outcomes if o != "failed")
     earlier = sum(1 for o in outcomes if o == "skipped")
     failed = len(outcomes) - done
-    title = f"signfree sweep: {manifest.source}"
+    title = f"signfree {manifest.command}: {manifest.source}"
     parts = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
              '<meta name="viewport" content="width=device-width, initial-scale=1">',
              f"<title>{_e(title)}</title>", f"<style>{CSS}{EXTRA_CSS}</style>", "</head>",
