@@ -278,7 +278,9 @@ def _outcomes(executor, jobs, progress):
             fut = done.get()
             try:
                 outcome = fut.result()
-            except Exception as exc:  # noqa: BLE001 -- a worker died or was lost
+            except (KeyboardInterrupt, SystemExit):
+                raise
+            except BaseException as exc:  # noqa: BLE001 -- a worker died, was lost or cancelled
                 outcome = {"name": futures[fut], "ok": False, "seconds": None,
                            "failure": "the worker running it was lost: " + failure_text(exc)}
             futures.pop(fut)
@@ -415,19 +417,19 @@ def run_sweep(manifest, mu_spec, out, settings=None, kind=None, symmetry=None, p
         out = prepare_folder(out, request)
         base = out / ENSEMBLES
         _clear_leftovers(base, names)
-        todo = []
+        to_run = []
         for e in manifest.ensembles:
             if is_complete(base / e.name, e):
                 outcomes[e.name] = "skipped"
                 continue
             volume = e.volume or settings.volume
-            todo.append({"name": e.name, "path": str(e.path), "mu": mu_spec,
-                         "settings": settings.with_(volume=volume), "kind": e.kind or kind,
-                         "volume": volume, "symmetry": e.symmetry or symmetry,
-                         "plots": bool(plots)})
+            to_run.append({"name": e.name, "path": str(e.path), "mu": mu_spec,
+                           "settings": settings.with_(volume=volume), "kind": e.kind or kind,
+                           "volume": volume, "symmetry": e.symmetry or symmetry,
+                           "plots": bool(plots)})
         display = SweepProgress(len(names), len(outcomes), progress)
         try:
-            for outcome in _outcomes(pool, todo, display):
+            for outcome in _outcomes(pool, to_run, display):
                 name = outcome["name"]
                 if outcome["ok"]:
                     _store(base, name, outcome["files"])
