@@ -38,6 +38,10 @@ _API = {
     "ComplexMu": "signfree.analysis.mu_spec",
     "parse_observables": "signfree.analysis.weights",
     "read_imaginary_reference": "signfree.io.references",
+    "extrapolate": "signfree.analysis.volumes",
+    "free_energy_points": "signfree.analysis.volumes",
+    "run_sweep": "signfree.report.sweep",
+    "read_manifest": "signfree.report.manifest",
 }
 
 __all__ = sorted(_API)

@@ -37,6 +37,8 @@ class Settings:
               polynomials in q (analysis.weights); a comma list or a tuple
     imaginary_reference  measured <q>(nu) at imaginary mu = i nu to compare
               with (an io.references.ImaginaryReference), or None
+    volume_order   order of the fit in 1/V of the infinite-volume limit:
+              'auto' (chosen per mu from the errors) or a fixed power
     """
 
     model: str = "chebyshev"
@@ -51,6 +53,7 @@ class Settings:
     order: int = 4
     observables: tuple = ()
     imaginary_reference: object = None
+    volume_order: object = "auto"
 
     def __post_init__(self):
         if self.model not in MODELS:
@@ -68,6 +71,10 @@ class Settings:
                              "resamples")
         if self.order < 1:
             raise ValueError(f"--order {self.order}: expected at least 1")
+        if not (self.volume_order == "auto" or (isinstance(self.volume_order, int)
+                                                 and 0 <= self.volume_order <= 4)):
+            raise ValueError(f"--volume-order {self.volume_order!r}: expected 'auto' or an "
+                             "integer from 0 to 4")
         if not (self.degree is None or self.degree == "per-mu" or isinstance(self.degree, int)):
             raise ValueError(f"--degree {self.degree!r}: expected an integer or 'per-mu'")
         if isinstance(self.observables, str):

@@ -6,6 +6,8 @@ command.
     signfree zeros INPUT --box RE0:RE1,IM0:IM1 [options]
     signfree compare INPUT --mu SPEC [options]
     signfree report INPUT --mu SPEC [--reference FILE] [options]
+    signfree volumes INPUT INPUT [INPUT ...] --mu SPEC [--volumes V1,V2,...] [options]
+    signfree sweep MANIFEST --mu SPEC [--jobs N | --scheduler ADDRESS] [options]
 
 A command module only parses its options, calls the API and writes. Only the
 module of the command named on the command line is imported (matplotlib
@@ -27,6 +29,8 @@ COMMANDS = {
     "zeros": ("signfree.cli.zeros", "zeros of Z(mu) in a box of the complex mu plane"),
     "compare": ("signfree.cli.compare", "Chebyshev, cumulant and piecewise routes side by side"),
     "report": ("signfree.cli.report", "analysis with figures and an offline HTML report"),
+    "volumes": ("signfree.cli.volumes", "several volumes to the infinite-volume limit"),
+    "sweep": ("signfree.cli.sweep", "many ensembles from a manifest, locally or on a cluster"),
 }
 EPILOG = """\
 inputs:   text (comma-, semicolon- or whitespace-separated), .npy/.npz, FILE.h5:/group/dataset

@@ -136,6 +136,22 @@ def add_analysis_options(p):
                         "the scan from the resampled fits (needs replicas)")
 
 
+def add_volume_options(p):
+    """--volume-order: the fit in 1/V of the infinite-volume limit."""
+    p.add_argument("--volume-order", type=_volume_order, default="auto", metavar="auto|P",
+                   help="powers of 1/V fitted for the infinite-volume limit (default auto: "
+                        "the smallest order consistent with the errors, per mu)")
+
+
+def _volume_order(text):
+    if text == "auto":
+        return text
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected 'auto' or an integer, got {text!r}")
+
+
 def _degree(text):
     if text == "per-mu":
         return text
@@ -157,6 +173,7 @@ def settings_from_args(args):
         "order": getattr(args, "order", None),
         "observables": getattr(args, "observables", None),
         "imaginary_reference": _imaginary_reference(getattr(args, "imaginary_reference", None)),
+        "volume_order": getattr(args, "volume_order", None),
     }
     if given["order"] is not None and given["model"] != "cumulant":
         raise ValueError(f"--order {given['order']}: the order of the cumulant expansion "

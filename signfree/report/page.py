@@ -180,15 +180,15 @@ def _lead_columns(columns, first=("model", "mu", "status")):
     return lead + [c for c in columns if c not in lead]
 
 
-def _table(columns, records, table_id, status_key="status"):
-    head = "".join(f'<th scope="col" class="{"text" if c in TEXT_COLUMNS else "num"}">'
+def _table(columns, records, table_id, status_key="status", text_columns=TEXT_COLUMNS):
+    head = "".join(f'<th scope="col" class="{"text" if c in text_columns else "num"}">'
                    f'{_e(c).replace("_", "_<wbr>")}</th>' for c in columns)
     body = []
     for rec in records:
         cells = []
         for c in columns:
             v = rec.get(c, "")
-            cls = "text" if c in TEXT_COLUMNS else "num"
+            cls = "text" if c in text_columns else "num"
             if v in ("", None):
                 cells.append(f'<td class="{cls} empty">&ndash;</td>')
             else:
