@@ -52,9 +52,17 @@ def analyse(density, mus, settings=None, samples=None, **changes):
     s = settings_of(settings, **changes)
     if s.model == "cumulant":
         return analyse_cumulant(density, mus, s, samples)
+    # charges on a lattice: the periodic sum (signfree.analysis.lattice)
+    from signfree.analysis.lattice import analyse_lattice, resolve_lattice
+    charge, notes = resolve_lattice(density, s, samples)
+    if charge is not None:
+        return analyse_lattice(charge, mus, s, samples, notes)
     if s.degree == "per-mu":
-        return _analyse_per_mu(density, mus, s)
-    return _analyse_fixed(density, mus, s)
+        result = _analyse_per_mu(density, mus, s)
+    else:
+        result = _analyse_fixed(density, mus, s)
+    result.table.info["notes"].extend(notes)
+    return result
 
 
 def _analyse_fixed(density, mus, s):

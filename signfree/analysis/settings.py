@@ -13,6 +13,7 @@ from fractions import Fraction
 MODELS = ("chebyshev", "piecewise", "cumulant")
 ERROR_METHODS = ("auto", "jackknife", "bootstrap", "covariance", "none")
 PARITIES = ("even", "odd", "none")
+LATTICE_ROUTES = ("auto", "direct", "smoothed")
 
 
 @dataclass(frozen=True)
@@ -31,6 +32,13 @@ class Settings:
     bootstrap_samples, seed   bootstrap resamples and their seed (None: random,
               recorded)
     order     highest order of the cumulant expansion
+    step      charge lattice: None (metadata, else detection), 'continuous'
+              (the integral), or the lattice step as a positive Fraction
+              (Z is then the periodic sum over the lattice points)
+    lattice_route  for lattice charges: 'direct' (the measured P(Q)),
+              'smoothed' (the Chebyshev model at the lattice points) or 'auto'
+    complete_range  the data cover every value the charge can take (nothing
+              lies beyond the range); None: the metadata 'range: complete'
     """
 
     model: str = "chebyshev"
@@ -43,6 +51,9 @@ class Settings:
     bootstrap_samples: int = 200
     seed: int = None
     order: int = 4
+    step: object = None
+    lattice_route: str = "auto"
+    complete_range: bool = None
 
     def __post_init__(self):
         if self.model not in MODELS:
@@ -60,6 +71,15 @@ class Settings:
                              "resamples")
         if self.order < 1:
             raise ValueError(f"--order {self.order}: expected at least 1")
+        if self.step is not None:
+            from signfree.models.lattice import parse_step
+            try:
+                object.__setattr__(self, "step", parse_step(self.step))
+            except ValueError as exc:
+                raise ValueError(f"--{exc}") from None
+        if self.lattice_route not in LATTICE_ROUTES:
+            raise ValueError(f"--lattice-route {self.lattice_route!r}: expected one of "
+                             f"{', '.join(LATTICE_ROUTES)}")
         if not (self.degree is None or self.degree == "per-mu" or isinstance(self.degree, int)):
             raise ValueError(f"--degree {self.degree!r}: expected an integer or 'per-mu'")
 

@@ -4,7 +4,7 @@ uses. The analysis options fill the fields of
 import argparse
 import sys
 
-from signfree.analysis.settings import ERROR_METHODS, MODELS, Settings
+from signfree.analysis.settings import ERROR_METHODS, LATTICE_ROUTES, MODELS, Settings
 
 
 class Parser(argparse.ArgumentParser):
@@ -57,6 +57,21 @@ def add_analysis_options(p):
     p.add_argument("--seed", type=int, help="bootstrap seed (default: random, recorded)")
     p.add_argument("--certify", action="store_true",
                    help="rigorous enclosures by acb.integral per point (slower)")
+    add_lattice_options(p)
+
+
+def add_lattice_options(p):
+    """--step, --lattice-route, --complete-range: charges on a lattice."""
+    p.add_argument("--step", metavar="S|integer|continuous",
+                   help="the charge takes only the values of a lattice of step S (Z is then "
+                        "the periodic sum over them); 'continuous' integrates (default: "
+                        "metadata, else detection)")
+    p.add_argument("--lattice-route", choices=LATTICE_ROUTES, default="auto",
+                   help="for lattice charges: sum the measured P(Q) (direct), the smoothed "
+                        "model at the lattice points (smoothed), or choose (auto)")
+    p.add_argument("--complete-range", action="store_true", default=None,
+                   help="the data cover every value the charge can take: nothing lies "
+                        "beyond the range (a finite system's magnetisation)")
 
 
 def _degree(text):
@@ -90,7 +105,9 @@ def settings_from_args(args):
         "volume": getattr(args, "volume", None), "parity": getattr(args, "symmetry", None),
         "errors": getattr(args, "errors", None),
         "bootstrap_samples": getattr(args, "bootstrap", None), "seed": getattr(args, "seed", None),
-        "order": getattr(args, "order", None),
+        "order": getattr(args, "order", None), "step": getattr(args, "step", None),
+        "lattice_route": getattr(args, "lattice_route", None),
+        "complete_range": getattr(args, "complete_range", None),
     }
     return Settings(**{k: v for k, v in given.items() if v is not None})
 

@@ -1,0 +1,426 @@
+"""The analysis path for charges on a lattice: which lattice (option,
+metadata or detection), which weights enter the exact sum (the measured P(Q)
+or the smoothed model at the lattice points, and why), and the results rows
+with their error budget:
+
+  stat_err   replicas (jackknife, bootstrap) or linear propagation of the
+             fit covariance (smoothed), or of independent errors of the
+             measured points (Poisson counts, stated errors), or the blocking
+             method on the series exp(i theta Q_t) of raw samples (direct)
+  model_err  smoothed: the change when the Chebyshev degree is raised;
+             direct: how far the stored values (their written resolution)
+             can move Z, a first-order bound
+  edge_err   the tail sum beyond the measured range (0 when the data cover
+             every value the charge can take)
+  quad_err   rounding only (ball radius): a finite sum has no quadrature.
+
+Z(theta) is periodic with period 2 pi / step (up to the phase
+exp(2 pi i Q_0 / step)); any theta, including pi, is summed exactly.
+"""
+import dataclasses
+import time
+from dataclasses import dataclass
+
+import mpmath
+import numpy as np
+
+from signfree import engine
+from signfree.analysis import uncertainty
+from signfree.analysis.lattice_budget import (blocking_errors, direct_method, integral_gap,
+                                              linear_errors, resolution_errors, tail_bound)
+from signfree.analysis.results import Analysis, ResultTable, Row
+from signfree.analysis.theta import theta_observables
+from signfree.engine.sums import lattice_transform
+from signfree.errors import InputError
+from signfree.models.chebyshev import fit_chebyshev
+from signfree.models.lattice import (CONTINUOUS, LatticeModel, data_charges, direct_model,
+                                     direct_problem, integer_step, lattice_through, parse_step,
+                                     smoothed_model)
+
+
+@dataclass(frozen=True)
+class ChargeLattice:
+    """The lattice a run sums over, where it came from ('option',
+    'metadata', 'detected'), whether the data cover the charge's whole
+    range, and the density on it (empty bins off the lattice left out)."""
+
+    lattice: object
+    source: str
+    complete: bool
+    density: object
+
+
+def _meta_line(source, key):
+    """The line of a '# key:' metadata line in the input file (for messages)."""
+    try:
+        with open(source, encoding="utf-8-sig") as f:
+            for no, line in enumerate(f, 1):
+                text = line.strip().lower()
+                if text.startswith("#") and text[1:].strip().startswith(key + ":"):
+                    return no
+    except OSError:
+        pass
+    return None
+
+
+def _meta_error(density, key, message):
+    return InputError(density.source, f"metadata '{key}': {message}",
+                      _meta_line(density.source, key))
+
+
+def _stated_step(density):
+    """The step the metadata state: 'step: S' or 'charge: integer |
+    continuous' (None when neither is given)."""
+    meta = density.metadata
+    step = None
+    if "step" in meta:
+        try:
+            step = parse_step(meta["step"])
+        except ValueError as exc:
+            raise _meta_error(density, "step", str(exc)) from None
+    if "charge" in meta:
+        word = meta["charge"].strip().lower()
+        if word not in ("integer", CONTINUOUS):
+            raise _meta_error(density, "charge", f"{meta['charge']!r}: expected 'integer' or "
+                              "'continuous'")
+        if step is None:
+            step = CONTINUOUS if word == CONTINUOUS else "integer"
+        elif (word == CONTINUOUS) != (step == CONTINUOUS):
+            raise _meta_error(density, "charge", f"'{word}' contradicts 'step: "
+                              f"{meta['step']}'")
+    return step
+
+
+def _complete(density, s):
+    if s.complete_range is not None:
+        return bool(s.complete_range)
+    word = density.metadata.get("range")
+    if word is None:
+        return False
+    if word.strip().lower() not in ("complete", "partial"):
+        raise _meta_error(density, "range", f"{word!r}: expected 'complete' or 'partial'")
+    return word.strip().lower() == "complete"
+
+
+def _on_lattice(density, lattice):
+    """The density without empty histogram bins that lie off the lattice."""
+    if density.kind != "histogram" or lattice.index(density.q) is not None:
+        return density
+    keep = np.array([lattice.index([q]) is not None for q in density.q])
+    return dataclasses.replace(
+        density, q=density.q[keep], value=density.value[keep],
+        width=None if density.width is None else density.width[keep],
+        replicas=None if density.replicas is None else density.replicas[:, keep])
+
+
+def resolve_lattice(density, s, samples=None):
+    """(ChargeLattice or None for a continuous charge, notes).
+
+    Precedence: the option (``s.step``), then the metadata ('step: S',
+    'charge: integer' with the step the integers show, 'charge:
+    continuous'), then detection: raw samples that are all integers are a
+    lattice charge (a continuous charge is never sampled as exact
+    integers). A density table on an integer grid may be a continuous
+    charge tabulated there, so it keeps the integral and gets a note. When
+    the metadata and the data disagree, the option settles it."""
+    notes = []
+    occupied = data_charges(density, occupied=True)
+    shown = integer_step(samples.q if samples is not None else occupied)
+    if s.step == CONTINUOUS:
+        return None, notes
+    if s.step is not None:
+        step, source = s.step, "option"
+    else:
+        stated = _stated_step(density)
+        if stated == CONTINUOUS:
+            return None, notes
+        if stated is None:
+            if samples is None or shown is None:
+                if shown is not None:
+                    notes.append(f"the charges lie on a lattice of step {shown}: if the charge "
+                                 "takes only these values (a topological charge, a "
+                                 "magnetisation), Z is a periodic sum and this integral misses "
+                                 "its aliased terms near mu = pi/step; say so with --step "
+                                 f"{shown} or '# step: {shown}'")
+                return None, notes
+            step, source = parse_step(shown), "detected"
+            notes.append(f"charge lattice of step {shown} detected (every sample is an "
+                         "integer): Z is the periodic sum over it (--step continuous "
+                         "integrates instead)")
+        elif stated == "integer":
+            if shown is None:
+                bad = occupied[occupied != np.rint(occupied)]
+                raise _meta_error(density, "charge", "'integer', but the data hold the charge "
+                                  f"{float(bad[0]) if len(bad) else 'off the integers'}")
+            step, source = parse_step(shown), "metadata"
+            if shown > 1:
+                notes.append(f"integer charge on a lattice of step {shown} (every charge "
+                             f"differs from the others by a multiple of {shown})")
+        else:
+            step, source = stated, "metadata"
+            if shown is not None and shown != step and shown % step == 0:
+                raise _meta_error(density, "step", f"{meta_text(step)}, but every charge "
+                                  f"lies on the coarser lattice of step {shown}: give "
+                                  f"--step {meta_text(step)} or --step {shown}")
+    lattice = lattice_through(occupied, step)
+    if lattice is None:
+        where = "--step" if source == "option" else "the metadata"
+        raise InputError(density.source, f"the charges do not lie on a lattice of step "
+                         f"{meta_text(step)} (from {where})")
+    density = _on_lattice(density, lattice)
+    lattice = lattice_through(data_charges(density), step)
+    if lattice is None:
+        raise InputError(density.source, f"the charges do not lie on a lattice of step "
+                         f"{meta_text(step)}")
+    return ChargeLattice(lattice, source, _complete(density, s), density), notes
+
+
+def meta_text(step):
+    return str(step.numerator) if step.denominator == 1 else str(step)
+
+
+# ------------------------------------------------------------- route
+
+def _fit(density, s):
+    """The Chebyshev fit of ln P (None when there are too few points)."""
+    try:
+        return fit_chebyshev(density, degree=s.degree if isinstance(s.degree, int) else None,
+                             parity=s.parity)
+    except InputError:
+        if s.lattice_route == "smoothed" or isinstance(s.degree, int):
+            raise
+        return None
+
+
+def choose_route(density, s, lattice, fit):
+    """('direct' | 'smoothed', why). Auto: the measured values when no
+    errors are given (exact enumerations or transfer matrices, which no
+    polynomial of modest degree fits), when no Chebyshev degree fits ln P
+    within its errors, or with --model piecewise; otherwise the smoothed
+    model, which reaches below the noise of single points."""
+    problem = direct_problem(density, lattice)
+    if s.lattice_route == "direct":
+        if problem:
+            raise InputError(density.source, f"--lattice-route direct: {problem}")
+        return "direct", "asked for (--lattice-route direct)"
+    if s.lattice_route == "smoothed":
+        return "smoothed", "asked for (--lattice-route smoothed)"
+    if problem is None:
+        if s.model == "piecewise":
+            return "direct", "the piecewise reconstruction of lattice data is the measured values"
+        if density.error_source == "none" and density.kind != "histogram":
+            return "direct", ("no errors given: the values are taken as exact (an enumeration "
+                              "or a transfer matrix), summed as they are")
+        if fit is None:
+            return "direct", "too few points for a Chebyshev fit"
+        if not fit.consistent:
+            chi = fit.model.chi2 / max(fit.model.dof, 1)
+            return "direct", (f"no Chebyshev degree fits ln P within its errors (chi2/dof = "
+                              f"{chi:.3g} at degree {fit.model.degree})")
+        return "smoothed", (f"Chebyshev degree {fit.model.degree} fits ln P within its errors, "
+                            "and the smoothed P reaches below the noise of single points")
+    if fit is None:
+        raise InputError(density.source, f"{problem}, and there are too few points for a "
+                         "Chebyshev fit")
+    return "smoothed", f"the measured values cannot be summed directly: {problem}"
+
+
+# ------------------------------------------------------------- the path
+
+def analyse_lattice(charge, mus, s, samples=None, notes=()):
+    """Z(theta)/Z(0) as the exact sum over the lattice of ``charge`` (a
+    :class:`ChargeLattice`) for every theta of ``mus``, as an
+    :class:`Analysis` whose table carries the error budget per theta."""
+    start = time.perf_counter()
+    notes = list(notes)
+    density, lattice, complete = charge.density, charge.lattice, charge.complete
+    if s.degree == "per-mu":
+        notes.append("--degree per-mu applies to the integral; the lattice sum uses the "
+                     "automatic degree")
+        s = s.with_(degree=None)
+    if s.certify:
+        notes.append("--certify changes nothing here: a finite sum has no quadrature error, "
+                     "and its balls already bound the rounding")
+    fit = _fit(density, s)
+    route, reason = choose_route(density, s, lattice, fit)
+    run = _smoothed if route == "smoothed" else _direct
+    out = run(density, mus, s, lattice, complete, fit, samples)
+    tr, central = out["transform"], out["central"]
+    edge = tail_bound(central)
+    rows = []
+    with mpmath.workdps(s.digits + 10):
+        for k, mu in enumerate(tr.mus):
+            z = tr.values[0][k]
+            rows.append(Row(mu=mu, value=mpmath.mpc(engine.to_mpf(z.real), engine.to_mpf(z.imag)),
+                            quad_err=tr.quad_err[0][k], model_err=out["model_err"][k],
+                            edge_err=edge, stat_err=out["stat"][k],
+                            model_noise=out["model_noise"][k], resolved=tr.resolved[k],
+                            degree=central.degree, digits=s.digits))
+    volume = s.volume if s.volume is not None else density.volume
+    info = {
+        "model": central.label, "degree": central.degree, "parity": central.parity,
+        "precision_bits": tr.prec, "precision_digits": int(tr.prec / engine.LOG2_10),
+        "nodes": lattice.count, "integration": f"exact sum over {lattice.count} lattice points",
+        "domain": list(central.domain), "statistical_errors": out["errors"],
+        "lattice": dict(lattice.describe(), source=charge.source, complete_range=complete,
+                        period=f"2 pi / {meta_text(lattice.step)}"),
+        "route": route, "route_reason": reason, "model_err_is": out["model_err_is"],
+        "edge_err_is": ("0: the data cover every value of the charge" if complete else
+                        "the tail sum beyond the range, continuing ln P geometrically with its "
+                        "slope at each end"),
+        "notes": notes,
+    }
+    if out.get("bootstrap_seed") is not None:
+        info["bootstrap_seed"] = out["bootstrap_seed"]
+    if fit is not None:
+        info.update({"chi2": fit.model.chi2, "dof": fit.model.dof,
+                     "chi2_per_dof": fit.model.chi2 / fit.model.dof if fit.model.dof else None,
+                     "degree_criterion": fit.criterion, "fit_consistent": fit.consistent,
+                     "parity_test": fit.parity_test,
+                     "errors_estimated_from_residuals": fit.noise_estimated})
+        if route == "smoothed":
+            info["model_err_against"] = [m.label for m in out["neighbours"]]
+            notes.extend(fit.notes)
+    if out["errors"] == "none":
+        notes.append("no replicas and no per-point errors: no statistical error "
+                     "(avg_phase_err is empty)")
+    if volume is None:
+        notes.append("no volume given: delta_f and chi_t are left empty (use --volume)")
+    twin = out.get("twin")
+    if twin is not None:
+        ok = [r.status == "ok" for r in rows]
+        info["aliasing"] = integral_gap(twin[0], [z for z, o in zip(twin[1], ok) if o],
+                                        [m for m, o in zip(tr.mus, ok) if o], tr.prec)
+        if info["aliasing"].get("note"):
+            notes.append(info["aliasing"]["note"])
+    info["theta"] = theta_observables(central, volume, neighbours=out.get("neighbours", ()),
+                                      **out["observable_errors"])
+    table = ResultTable(rows=rows, model_label=central.label, volume=volume, info=info)
+    info["horizon"] = table.horizon()
+    return Analysis(density=density, model=central, fit=fit, transform=tr, table=table,
+                    seconds=time.perf_counter() - start)
+
+
+def _smoothed(density, mus, s, lattice, complete, fit, samples):
+    central = smoothed_model(fit.model, lattice, complete)
+    neighbours = [smoothed_model(m, lattice, complete) for m in fit.next_models]
+    method = uncertainty.choose_method(density, s.errors, "chebyshev")
+    batch = [central] + neighbours
+    resamples, neighbour_resamples, gradient, seed = [], [], (), s.seed
+    if method in ("jackknife", "bootstrap"):
+        if method == "bootstrap" and seed is None:
+            seed = int(np.random.SeedSequence().entropy % (1 << 32))
+        values = uncertainty.resampled_values(density, method, s.bootstrap_samples, seed)
+        resamples = [smoothed_model(m, lattice, complete)
+                     for m in uncertainty.resampled_models(density, fit.model, values)]
+        if method == "jackknife":
+            neighbour_resamples = [[smoothed_model(x, lattice, complete) for x in
+                                    uncertainty.resampled_models(density, m.base, values)]
+                                   for m in neighbours]
+    elif method == "covariance":
+        ks, factor = uncertainty.coefficient_covariance(density, fit.model)
+        gradient = ks
+    extra = resamples + [m for group in neighbour_resamples for m in group]
+    tr = lattice_transform(batch + extra, mus, digits=s.digits, check_rows=len(batch),
+                           gradient=gradient)
+    K, n_res = len(tr.mus), len(resamples)
+    rep_rows = tr.values[len(batch):len(batch) + n_res]
+    if resamples:
+        stat = uncertainty.spread_relative(method, tr.values[0], rep_rows)
+        obs = {"resamples": resamples, "method": method}
+    elif gradient:
+        stat = uncertainty.propagate_covariance(tr.values[0], tr.gradient, ks, factor)
+        obs = {"directions": _directions(fit.model, ks, factor, lattice, complete)}
+    else:
+        stat, obs = [None] * K, {}
+    model_err, model_noise = [None] * K, [None] * K
+    if neighbours:
+        diffs = [[engine.difference(tr.values[0][k], tr.values[i][k]) for k in range(K)]
+                 for i in range(1, len(batch))]
+        noise = []
+        for i, group in enumerate(neighbour_resamples, 1):
+            first = len(batch) + n_res * i
+            rows_i = [[engine.difference(a, b) for a, b in zip(rep_rows[j], tr.values[first + j])]
+                      for j in range(n_res)]
+            noise.append(uncertainty.spread_relative(method, diffs[i - 1], rows_i))
+        for k in range(K):
+            i = max(range(len(diffs)), key=lambda i: engine.upper(diffs[i][k]))
+            model_err[k] = engine.upper(diffs[i][k])
+            model_noise[k] = noise[i][k] if noise else None
+    return {"transform": tr, "central": central, "neighbours": neighbours, "stat": stat,
+            "model_err": model_err, "model_noise": model_noise,
+            "model_err_is": "the largest change of the value when the Chebyshev degree is "
+                            "raised to the next two candidates",
+            "errors": uncertainty_text(method, density, s.bootstrap_samples),
+            "bootstrap_seed": seed if method == "bootstrap" else None,
+            "twin": (fit.model, tr.values[0]), "observable_errors": obs}
+
+
+def _directions(model, ks, factor, lattice, complete):
+    """Pairs of models moved by -+ h along each independent direction of the
+    fit covariance C = L L^T (the columns of L), for linear error
+    propagation into the theta observables by central differences."""
+    h = 1e-3
+    out = []
+    for i in range(factor.shape[1]):
+        pair = []
+        for sign in (-h, h):
+            coef = model.coef.copy()
+            coef[ks] += sign * factor[:, i]
+            pair.append(smoothed_model(dataclasses.replace(model, coef=coef), lattice, complete))
+        out.append((pair[0], pair[1], 2 * h))
+    return out
+
+
+def _direct(density, mus, s, lattice, complete, fit, samples):
+    central = direct_model(density, lattice, complete=complete)
+    method = direct_method(density, s.errors, samples)
+    batch, resamples, seed = [central], [], s.seed
+    if method in ("jackknife", "bootstrap"):
+        if method == "bootstrap" and seed is None:
+            seed = int(np.random.SeedSequence().entropy % (1 << 32))
+        values = uncertainty.resampled_values(density, method, s.bootstrap_samples, seed)
+        resamples = [direct_model(density, lattice, values=v, complete=complete)
+                     for v, _ in values]
+    twin = [smoothed_model(fit.model, lattice, complete)] if fit is not None else []
+    tr = lattice_transform(batch + twin + resamples, mus, digits=s.digits, check_rows=1)
+    K = len(tr.mus)
+    obs = {}
+    if resamples:
+        stat = uncertainty.spread_relative(method, tr.values[0], tr.values[1 + len(twin):])
+        obs = {"resamples": resamples, "method": method}
+    elif method == "blocking":
+        stat = blocking_errors(samples, tr.mus, tr.values[0])
+    elif method in ("poisson", "stated"):
+        stat, sigma = linear_errors(central, density, tr, method)
+        obs = {"point_sigma": sigma, "slopes": density.kind == "slopes"}
+    else:
+        stat = [None] * K
+    if method == "blocking":
+        # the histogram of the samples carries counts scaled to the effective
+        # size, so the Poisson route gives the observables their errors
+        obs = {"point_sigma": linear_errors(central, density, None, "poisson")[1],
+               "slopes": False}
+    model_err = resolution_errors(central, density, tr.values[0])
+    return {"transform": tr, "central": central, "stat": stat, "model_err": model_err,
+            "model_noise": [None] * K,
+            "model_err_is": ("0: counts are exact" if density.kind == "histogram" else
+                             "how far the values as stored (to their written resolution) can "
+                             "move Z, a first-order bound"),
+            "errors": uncertainty_text(method, density, s.bootstrap_samples),
+            "bootstrap_seed": seed if method == "bootstrap" else None,
+            "twin": (fit.model, tr.values[1]) if twin else None, "observable_errors": obs}
+
+
+def uncertainty_text(method, density, samples):
+    n_rep = max(1, len(density.replica_labels))
+    return {
+        "jackknife": f"delete-one jackknife over {n_rep} replicas, each summed",
+        "bootstrap": f"bootstrap, {samples} resamples of {n_rep} replicas, each summed",
+        "covariance": "linear propagation of the fit-coefficient covariance through the sum",
+        "poisson": "linear propagation of the Poisson errors of the counts through the sum",
+        "stated": "linear propagation of the stated per-point errors through the sum",
+        "blocking": "blocking method (Flyvbjerg & Petersen 1989) on the series "
+                    "exp(i theta Q_t) of the samples",
+        "none": "none",
+    }[method]
