@@ -25,17 +25,15 @@ import mpmath
 import numpy as np
 
 from signfree import engine
-from signfree.analysis import uncertainty
-from signfree.analysis.lattice_budget import (blocking_errors, direct_method, integral_gap,
-                                              linear_errors, resolution_errors, tail_bound)
-from signfree.analysis.results import Analysis, ResultTable, Row
+from signfree.analysis.lattice_budget import integral_gap
+from signfree.analysis.lattice_routes import (check_against_measured, direct_route, rows_of,
+                                              smoothed_route)
+from signfree.analysis.results import Analysis, ResultTable
 from signfree.analysis.theta import theta_observables
-from signfree.engine.sums import lattice_transform
 from signfree.errors import InputError
 from signfree.models.chebyshev import fit_chebyshev
-from signfree.models.lattice import (CONTINUOUS, LatticeModel, data_charges, direct_model,
-                                     direct_problem, integer_step, lattice_through, parse_step,
-                                     smoothed_model)
+from signfree.models.lattice import (CONTINUOUS, data_charges, direct_problem, integer_step,
+                                     lattice_through, parse_step)
 
 
 @dataclass(frozen=True)
@@ -193,11 +191,13 @@ def _fit(density, s):
 
 
 def choose_route(density, s, lattice, fit):
-    """('direct' | 'smoothed', why). Auto: the measured values when no
-    errors are given (exact enumerations or transfer matrices, which no
-    polynomial of modest degree fits), when no Chebyshev degree fits ln P
-    within its errors, or with --model piecewise; otherwise the smoothed
-    model, which reaches below the noise of single points."""
+    """('direct' | 'smoothed' | 'mixed', why). Auto: the measured values
+    when no errors are given (exact enumerations or transfer matrices, which
+    no polynomial of modest degree fits), when no Chebyshev degree fits ln P
+    within its errors, or with --model piecewise; 'mixed' when a degree fits:
+    per mu the measured sum where its own errors resolve it (no model
+    assumption) and the smoothed sum below that noise; the smoothed model
+    alone when the measured values cannot be summed point by point."""
     problem = direct_problem(density, lattice)
     if s.lattice_route == "direct":
         if problem:
@@ -217,8 +217,9 @@ def choose_route(density, s, lattice, fit):
             chi = fit.model.chi2 / max(fit.model.dof, 1)
             return "direct", (f"no Chebyshev degree fits ln P within its errors (chi2/dof = "
                               f"{chi:.3g} at degree {fit.model.degree})")
-        return "smoothed", (f"Chebyshev degree {fit.model.degree} fits ln P within its errors, "
-                            "and the smoothed P reaches below the noise of single points")
+        return "mixed", (f"Chebyshev degree {fit.model.degree} fits ln P within its errors: "
+                         "each mu takes the sum of the measured values where its errors "
+                         "resolve it, and the smoothed sum only below that noise")
     if fit is None:
         raise InputError(density.source, f"{problem}, and there are too few points for a "
                          "Chebyshev fit")
@@ -243,184 +244,87 @@ def analyse_lattice(charge, mus, s, samples=None, notes=()):
                      "and its balls already bound the rounding")
     fit = _fit(density, s)
     route, reason = choose_route(density, s, lattice, fit)
-    run = _smoothed if route == "smoothed" else _direct
-    out = run(density, mus, s, lattice, complete, fit, samples)
-    tr, central = out["transform"], out["central"]
-    edge = tail_bound(central)
-    rows = []
-    with mpmath.workdps(s.digits + 10):
-        for k, mu in enumerate(tr.mus):
-            z = tr.values[0][k]
-            rows.append(Row(mu=mu, value=mpmath.mpc(engine.to_mpf(z.real), engine.to_mpf(z.imag)),
-                            quad_err=tr.quad_err[0][k], model_err=out["model_err"][k],
-                            edge_err=edge, stat_err=out["stat"][k],
-                            model_noise=out["model_noise"][k], resolved=tr.resolved[k],
-                            degree=central.degree, digits=s.digits))
+    outs = {}
+    if route in ("smoothed", "mixed"):
+        outs["smoothed"] = smoothed_route(density, mus, s, lattice, complete, fit)
+    if route in ("direct", "mixed") or (route == "smoothed"
+                                        and direct_problem(density, lattice) is None):
+        outs["direct"] = direct_route(density, mus, s, lattice, complete, fit, samples)
+    rows = {name: rows_of(out, s.digits) for name, out in outs.items()}
+    check = None
+    if "smoothed" in outs and "direct" in outs:
+        check = check_against_measured(outs["smoothed"], outs["direct"])
+        rows["smoothed"] = rows_of(outs["smoothed"], s.digits)
+    if route == "mixed":
+        # the measured sum where its own errors resolve it two standard errors
+        # away from zero (as the horizon asks); below that noise the smoothed
+        # sum, the only information there
+        table_rows = [d if d.status == "ok" and d.magnitude >= 2 * d.total_err else m
+                      for d, m in zip(rows["direct"], rows["smoothed"])]
+        main = outs["smoothed"]
+    else:
+        table_rows = rows[route]
+        main = outs[route]
+    tr, central = main["transform"], main["central"]
     volume = s.volume if s.volume is not None else density.volume
     info = {
         "model": central.label, "degree": central.degree, "parity": central.parity,
         "precision_bits": tr.prec, "precision_digits": int(tr.prec / engine.LOG2_10),
         "nodes": lattice.count, "integration": f"exact sum over {lattice.count} lattice points",
-        "domain": list(central.domain), "statistical_errors": out["errors"],
+        "domain": list(central.domain), "statistical_errors": main["errors"],
         "lattice": dict(lattice.describe(), source=charge.source, complete_range=complete,
                         period=f"2 pi / {meta_text(lattice.step)}"),
-        "route": route, "route_reason": reason, "model_err_is": out["model_err_is"],
+        "route": route, "route_reason": reason, "model_err_is": main["model_err_is"],
         "edge_err_is": ("0: the data cover every value of the charge" if complete else
-                        "the tail sum beyond the range, continuing ln P geometrically with its "
-                        "slope at each end"),
+                        "(1 + |value|) T, with T the tail sum beyond the range relative to "
+                        "Z(0), ln P continued geometrically with its slope at each end"),
         "notes": notes,
     }
-    if out.get("bootstrap_seed") is not None:
-        info["bootstrap_seed"] = out["bootstrap_seed"]
+    if route == "mixed":
+        used = sum(1 for r, d in zip(table_rows, rows["direct"]) if r is d)
+        info["rows_from_measured"] = used
+        info["statistical_errors"] = (f"measured rows: {outs['direct']['errors']}; smoothed "
+                                      f"rows: {outs['smoothed']['errors']}")
+        info["model_err_is"] = (f"measured rows: {outs['direct']['model_err_is']}; smoothed "
+                                f"rows: {outs['smoothed']['model_err_is']}")
+    if main.get("bootstrap_seed") is not None:
+        info["bootstrap_seed"] = main["bootstrap_seed"]
     if fit is not None:
         info.update({"chi2": fit.model.chi2, "dof": fit.model.dof,
                      "chi2_per_dof": fit.model.chi2 / fit.model.dof if fit.model.dof else None,
                      "degree_criterion": fit.criterion, "fit_consistent": fit.consistent,
                      "parity_test": fit.parity_test,
                      "errors_estimated_from_residuals": fit.noise_estimated})
-        if route == "smoothed":
-            info["model_err_against"] = [m.label for m in out["neighbours"]]
+        if "smoothed" in outs:
+            info["model_err_against"] = [m.label for m in outs["smoothed"]["neighbours"]]
             notes.extend(fit.notes)
-    if out["errors"] == "none":
+    if check is not None:
+        info["check_against_measured"] = check
+        if check["disagree_at"]:
+            notes.append(f"the smoothed and the measured sums disagree beyond their errors at "
+                         f"{len(check['disagree_at'])} mu: model_err there is at least their "
+                         "difference")
+    if main["errors"] == "none":
         notes.append("no replicas and no per-point errors: no statistical error "
                      "(avg_phase_err is empty)")
     if volume is None:
         notes.append("no volume given: delta_f and chi_t are left empty (use --volume)")
-    twin = out.get("twin")
+    twin = main.get("twin")
     if twin is not None:
-        ok = [r.status == "ok" for r in rows]
+        ok = [r.status == "ok" for r in table_rows]
         info["aliasing"] = integral_gap(twin[0], [z for z, o in zip(twin[1], ok) if o],
                                         [m for m, o in zip(tr.mus, ok) if o], tr.prec)
         if info["aliasing"].get("note"):
             notes.append(info["aliasing"]["note"])
-    info["theta"] = theta_observables(central, volume, neighbours=out.get("neighbours", ()),
-                                      **out["observable_errors"])
-    table = ResultTable(rows=rows, model_label=central.label, volume=volume, info=info)
+    # the moments: model-free from the measured values when those carry errors
+    source = outs["direct"] if "direct" in outs and outs["direct"]["observable_errors"] \
+        else main
+    info["theta"] = theta_observables(source["central"], volume,
+                                      neighbours=source.get("neighbours", ()),
+                                      **source["observable_errors"])
+    info["theta"]["from"] = "measured values" if source is outs.get("direct") else \
+        "smoothed model"
+    table = ResultTable(rows=table_rows, model_label=central.label, volume=volume, info=info)
     info["horizon"] = table.horizon()
     return Analysis(density=density, model=central, fit=fit, transform=tr, table=table,
                     seconds=time.perf_counter() - start)
-
-
-def _smoothed(density, mus, s, lattice, complete, fit, samples):
-    central = smoothed_model(fit.model, lattice, complete)
-    neighbours = [smoothed_model(m, lattice, complete) for m in fit.next_models]
-    method = uncertainty.choose_method(density, s.errors, "chebyshev")
-    batch = [central] + neighbours
-    resamples, neighbour_resamples, gradient, seed = [], [], (), s.seed
-    if method in ("jackknife", "bootstrap"):
-        if method == "bootstrap" and seed is None:
-            seed = int(np.random.SeedSequence().entropy % (1 << 32))
-        values = uncertainty.resampled_values(density, method, s.bootstrap_samples, seed)
-        resamples = [smoothed_model(m, lattice, complete)
-                     for m in uncertainty.resampled_models(density, fit.model, values)]
-        if method == "jackknife":
-            neighbour_resamples = [[smoothed_model(x, lattice, complete) for x in
-                                    uncertainty.resampled_models(density, m.base, values)]
-                                   for m in neighbours]
-    elif method == "covariance":
-        ks, factor = uncertainty.coefficient_covariance(density, fit.model)
-        gradient = ks
-    extra = resamples + [m for group in neighbour_resamples for m in group]
-    tr = lattice_transform(batch + extra, mus, digits=s.digits, check_rows=len(batch),
-                           gradient=gradient)
-    K, n_res = len(tr.mus), len(resamples)
-    rep_rows = tr.values[len(batch):len(batch) + n_res]
-    if resamples:
-        stat = uncertainty.spread_relative(method, tr.values[0], rep_rows)
-        obs = {"resamples": resamples, "method": method}
-    elif gradient:
-        stat = uncertainty.propagate_covariance(tr.values[0], tr.gradient, ks, factor)
-        obs = {"directions": _directions(fit.model, ks, factor, lattice, complete)}
-    else:
-        stat, obs = [None] * K, {}
-    model_err, model_noise = [None] * K, [None] * K
-    if neighbours:
-        diffs = [[engine.difference(tr.values[0][k], tr.values[i][k]) for k in range(K)]
-                 for i in range(1, len(batch))]
-        noise = []
-        for i, group in enumerate(neighbour_resamples, 1):
-            first = len(batch) + n_res * i
-            rows_i = [[engine.difference(a, b) for a, b in zip(rep_rows[j], tr.values[first + j])]
-                      for j in range(n_res)]
-            noise.append(uncertainty.spread_relative(method, diffs[i - 1], rows_i))
-        for k in range(K):
-            i = max(range(len(diffs)), key=lambda i: engine.upper(diffs[i][k]))
-            model_err[k] = engine.upper(diffs[i][k])
-            model_noise[k] = noise[i][k] if noise else None
-    return {"transform": tr, "central": central, "neighbours": neighbours, "stat": stat,
-            "model_err": model_err, "model_noise": model_noise,
-            "model_err_is": "the largest change of the value when the Chebyshev degree is "
-                            "raised to the next two candidates",
-            "errors": uncertainty_text(method, density, s.bootstrap_samples),
-            "bootstrap_seed": seed if method == "bootstrap" else None,
-            "twin": (fit.model, tr.values[0]), "observable_errors": obs}
-
-
-def _directions(model, ks, factor, lattice, complete):
-    """Pairs of models moved by -+ h along each independent direction of the
-    fit covariance C = L L^T (the columns of L), for linear error
-    propagation into the theta observables by central differences."""
-    h = 1e-3
-    out = []
-    for i in range(factor.shape[1]):
-        pair = []
-        for sign in (-h, h):
-            coef = model.coef.copy()
-            coef[ks] += sign * factor[:, i]
-            pair.append(smoothed_model(dataclasses.replace(model, coef=coef), lattice, complete))
-        out.append((pair[0], pair[1], 2 * h))
-    return out
-
-
-def _direct(density, mus, s, lattice, complete, fit, samples):
-    central = direct_model(density, lattice, complete=complete)
-    method = direct_method(density, s.errors, samples)
-    batch, resamples, seed = [central], [], s.seed
-    if method in ("jackknife", "bootstrap"):
-        if method == "bootstrap" and seed is None:
-            seed = int(np.random.SeedSequence().entropy % (1 << 32))
-        values = uncertainty.resampled_values(density, method, s.bootstrap_samples, seed)
-        resamples = [direct_model(density, lattice, values=v, complete=complete)
-                     for v, _ in values]
-    twin = [smoothed_model(fit.model, lattice, complete)] if fit is not None else []
-    tr = lattice_transform(batch + twin + resamples, mus, digits=s.digits, check_rows=1)
-    K = len(tr.mus)
-    obs = {}
-    if resamples:
-        stat = uncertainty.spread_relative(method, tr.values[0], tr.values[1 + len(twin):])
-        obs = {"resamples": resamples, "method": method}
-    elif method == "blocking":
-        stat = blocking_errors(samples, tr.mus, tr.values[0])
-    elif method in ("poisson", "stated"):
-        stat, sigma = linear_errors(central, density, tr, method)
-        obs = {"point_sigma": sigma, "slopes": density.kind == "slopes"}
-    else:
-        stat = [None] * K
-    if method == "blocking":
-        # the histogram of the samples carries counts scaled to the effective
-        # size, so the Poisson route gives the observables their errors
-        obs = {"point_sigma": linear_errors(central, density, None, "poisson")[1],
-               "slopes": False}
-    model_err = resolution_errors(central, density, tr.values[0])
-    return {"transform": tr, "central": central, "stat": stat, "model_err": model_err,
-            "model_noise": [None] * K,
-            "model_err_is": ("0: counts are exact" if density.kind == "histogram" else
-                             "how far the values as stored (to their written resolution) can "
-                             "move Z, a first-order bound"),
-            "errors": uncertainty_text(method, density, s.bootstrap_samples),
-            "bootstrap_seed": seed if method == "bootstrap" else None,
-            "twin": (fit.model, tr.values[1]) if twin else None, "observable_errors": obs}
-
-
-def uncertainty_text(method, density, samples):
-    n_rep = max(1, len(density.replica_labels))
-    return {
-        "jackknife": f"delete-one jackknife over {n_rep} replicas, each summed",
-        "bootstrap": f"bootstrap, {samples} resamples of {n_rep} replicas, each summed",
-        "covariance": "linear propagation of the fit-coefficient covariance through the sum",
-        "poisson": "linear propagation of the Poisson errors of the counts through the sum",
-        "stated": "linear propagation of the stated per-point errors through the sum",
-        "blocking": "blocking method (Flyvbjerg & Petersen 1989) on the series "
-                    "exp(i theta Q_t) of the samples",
-        "none": "none",
-    }[method]

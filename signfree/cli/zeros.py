@@ -5,7 +5,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from signfree.analysis.zeros import ContourError, ZeroResult, find_zeros, parse_box
-from signfree.cli.options import add_input_options
+from signfree.cli.options import add_input_options, add_lattice_options
 
 HELP = 'zeros of Z(mu) in a box of the complex mu plane'
 
@@ -23,6 +23,7 @@ def add_parser(subparsers):
                    help="significant digits wanted for each zero (default 12)")
     p.add_argument("--degree", type=int, help="Chebyshev degree (default: chosen from the errors)")
     add_input_options(p)
+    add_lattice_options(p)
     p.set_defaults(handler=cmd_zeros)
     return p
 
@@ -40,6 +41,9 @@ def zeros_files(args):
     density, samples, sample_notes = load(args.input, kind=getattr(args, "kind", None),
                                           symmetry=getattr(args, "symmetry", None))
     data = samples if samples is not None else density
+    lattice = _lattice_files(args, density, samples, data, box, digits)
+    if lattice is not None:
+        return lattice
     fit = fit_chebyshev(density, degree=getattr(args, "degree", None),
                         parity=getattr(args, "symmetry", None))
     result = find_zeros(fit.model, box, digits=digits)
@@ -60,6 +64,32 @@ def zeros_files(args):
     return result, fit, files
 
 
+def _lattice_files(args, density, samples, data, box, digits):
+    """For a charge on a lattice: the zeros as polynomial roots in the
+    fugacity plane (signfree.analysis.fugacity); None for a continuous one."""
+    from signfree.analysis.lattice import resolve_lattice
+    from signfree.analysis.settings import Settings
+    from signfree.io.writing import csv_text, file_sha256, json_text, package_versions
+    s = Settings(digits=digits, degree=getattr(args, "degree", None),
+                 parity=getattr(args, "symmetry", None), step=getattr(args, "step", None),
+                 lattice_route=getattr(args, "lattice_route", None) or "auto",
+                 complete_range=getattr(args, "complete_range", None))
+    charge, notes = resolve_lattice(density, s, samples)
+    if charge is None:
+        return None
+    from signfree.analysis.fugacity import find_lattice_zeros
+    result = find_lattice_zeros(charge, box, s, samples, notes)
+    summary = {
+        "input": {"file": str(args.input), "sha256": file_sha256(args.input),
+                  "kind": data.kind, "metadata": data.metadata},
+        **result.summary(), "versions": package_versions(),
+        "run_seconds": round(result.seconds, 3),
+        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+    }
+    return result, None, {"zeros.csv": csv_text(result.COLUMNS, result.records()),
+                          "summary.json": json_text(summary)}
+
+
 def cmd_zeros(args, out=None):
     """Run ``signfree zeros``; returns the exit status (2 on bad input, with
     one line on stderr and nothing written)."""
@@ -76,7 +106,10 @@ def cmd_zeros(args, out=None):
         return 2
     folder = write_files(Path(args.out) if args.out else new_folder_name("signfree-zeros"),
                          files)
-    print(f"{args.input}: model {fit.model.label} parity {fit.model.parity}", file=out)
+    if fit is None:
+        print(f"{args.input}: model {result.model}, zeros in the fugacity plane", file=out)
+    else:
+        print(f"{args.input}: model {fit.model.label} parity {fit.model.parity}", file=out)
     print(result.text(), file=out)
     print(f"wrote {folder / 'zeros.csv'} and {folder / 'summary.json'}", file=out)
     return 0

@@ -146,6 +146,9 @@ class LatticeModel:
       counts      exact P_j >= 0 as Fractions (direct, histogram counts).
     complete      the data cover every value the charge can take, so nothing
                   lies beyond the range (a finite system's magnetisation).
+    tail_slopes   d ln P/dQ at the two ends for the tail beyond the range (for
+                  measured values: a smooth fit's, steadier than the counts
+                  at an edge); None: from the values themselves.
     """
 
     lattice: Lattice
@@ -154,6 +157,7 @@ class LatticeModel:
     counts: tuple = None
     parity: str = "none"
     complete: bool = False
+    tail_slopes: tuple = None
 
     integrand = "lattice-sum"
 
@@ -220,6 +224,8 @@ class LatticeModel:
         """d ln P / dQ at the two ends of the range: the model's derivative,
         or for measured values the mean finite difference over the last
         ``points`` steps (one step is too noisy for counts near an edge)."""
+        if self.tail_slopes is not None:
+            return self.tail_slopes
         if self.base is not None:
             a, b = self.domain
             return float(self.base.derivative(a)), float(self.base.derivative(b))
