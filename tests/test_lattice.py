@@ -222,7 +222,7 @@ def test_gaussian_on_integers_against_poisson_summation(tmp_path):
     charges = range(-L, L + 1)
     path = write_log_density(tmp_path / "g.csv", charges, [-q * q / (2 * s * s) for q in charges],
                              "# step: 1\n")
-    mus = parse_mu_spec("0:4:11")
+    mus = parse_mu_spec(f"0:{PI}:11")
     result = analyse(read_density(path), mus, lattice_route="smoothed", degree=2,
                      errors="none", digits=10)
 
@@ -237,7 +237,9 @@ def test_gaussian_on_integers_against_poisson_summation(tmp_path):
         ratio = rows[float(row.mu)][2]
         integral = mpmath.exp(-s * s * t * t / 2)
         assert ratio == pytest.approx(float(integral / exact), rel=1e-6, abs=1e-12)
-    assert "1/" in result.table.info["aliasing"]["note"]
+    # at theta = pi the aliased term equals the integral itself: half the sum
+    assert rows[float(mus[-1])][2] == pytest.approx(0.5, rel=1e-4)
+    assert "off by 50%" in result.table.info["aliasing"]["note"]
 
 
 def test_stated_errors_propagate_like_perturbed_data(tmp_path):

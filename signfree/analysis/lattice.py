@@ -311,9 +311,8 @@ def analyse_lattice(charge, mus, s, samples=None, notes=()):
         notes.append("no volume given: delta_f and chi_t are left empty (use --volume)")
     twin = main.get("twin")
     if twin is not None:
-        ok = [r.status == "ok" for r in table_rows]
-        info["aliasing"] = integral_gap(twin[0], [z for z, o in zip(twin[1], ok) if o],
-                                        [m for m, o in zip(tr.mus, ok) if o], tr.prec)
+        info["aliasing"] = integral_gap(twin[0], twin[1], tr.mus, tr.prec,
+                                        [r.status == "ok" for r in table_rows], lattice.step)
         if info["aliasing"].get("note"):
             notes.append(info["aliasing"]["note"])
     # the moments: model-free from the measured values when those carry errors

@@ -29,13 +29,14 @@ import numpy as np
 from flint import acb, arb, arb_mat, ctx
 
 from signfree import engine
-from signfree.engine.balls import MAX_NODES, arb_of, exp_i, uniform_step
+from signfree.engine.balls import arb_of, exp_i, precision_bits, uniform_step
 from signfree.engine.rules import chebyshev_matrix, gauss_legendre, on_ladder
 from signfree.engine.sums import _evaluate, lattice_weights
 from signfree.io.samples import blocking_analysis
 from signfree.models.lattice import LatticeModel, log_resolution
 
 GAP_TOL = mpmath.mpf("1e-3")
+GAP_NODES = 4000        # the report is a diagnosis; it gives up before the run does
 
 
 def direct_method(density, errors, samples=None):
@@ -152,15 +153,19 @@ def blocking_errors(samples, mus, values):
     chains = samples.chains()
     totals = [float(len(q)) if w is None else float(np.sum(w)) for q, w in chains]
     whole = sum(totals)
+    # the charges take few values: cos and sin by table look-up
+    levels, where = np.unique(np.asarray(samples.q, dtype=float), return_inverse=True)
+    pieces = [where[samples.replicas == lab] for lab in np.unique(samples.replicas)] \
+        if samples.replicas is not None else [where]
     out = []
     for mu in mus:
         t = float(mu)
         var = 0.0
-        for (q, w), tot in zip(chains, totals):
-            if len(q) < 2:
-                continue
-            for f in (np.cos, np.sin):
-                var += (tot / whole) ** 2 * blocking_analysis(f(t * q), w).error ** 2
+        for f in (np.cos, np.sin):
+            table = f(t * levels)
+            for (q, w), idx, tot in zip(chains, pieces, totals):
+                if len(q) >= 2:
+                    var += (tot / whole) ** 2 * blocking_analysis(table[idx], w).error ** 2
         out.append(mpmath.sqrt(var))
     return out
 
@@ -209,13 +214,21 @@ def _gl_values(base, n, mus, prec):
     return out
 
 
-def integral_gap(base, sums, mus, prec):
+def integral_gap(base, sums, mus, prec, usable, step):
     """How far the integral of the smoothed ln P (the continuous route) is
     from the lattice sum of the same model, relative to the sum, per theta
-    (module docstring; only the thetas given, those whose sum is resolved);
-    with a note naming the worst case."""
-    if not mus:
-        return {"what": "no theta of the scan has an ok value to compare with", "rows": []}
+    (module docstring; only the thetas marked ``usable``, those whose sum
+    is resolved); with a note naming the worst case."""
+    # beyond pi / step the sum repeats while the integral only falls further:
+    # the comparison within the first half period says it all, and costs least
+    half_period = math.pi / float(step)
+    usable = [u and abs(float(m)) <= half_period * (1 + 1e-12) for u, m in zip(usable, mus)]
+    if not any(usable):
+        return {"what": "no theta up to pi/step has an ok value to compare with", "rows": []}
+    # a contiguous piece of the scan (an even grid stays even: rotation works)
+    first = usable.index(True)
+    last = len(usable) - usable[::-1].index(True)
+    sums, mus, usable = sums[first:last], list(mus[first:last]), usable[first:last]
     a, b = base.domain
     half = 0.5 * (b - a)
     lw = base.log_density(np.linspace(a, b, 2001))
@@ -224,21 +237,25 @@ def integral_gap(base, sums, mus, prec):
     mean = float((w * q).sum() / w.sum())
     var = max(float((w * (q - mean) ** 2).sum() / w.sum()), 1e-12)
     mags = [abs(_mpc(z)) for z in sums]
-    depth = max([float(-mpmath.log10(m)) for m in mags if m > 0] + [0.0])
-    omega = max(abs(float(m)) for m in mus) * half
+    depth = max([float(-mpmath.log10(m)) for m, u in zip(mags, usable) if m > 0 and u] + [0.0])
+    omega = max(abs(float(m)) for m, u in zip(mus, usable) if u) * half
     n = on_ladder(1.1 * (omega / 2 + math.sqrt(1.15 * (depth + 8)) * half / math.sqrt(var))
                   + 0.5 * base.degree + 16)
+    # the gap is wanted to GAP_TOL of the sum at the deepest usable theta only
+    prec = min(prec, precision_bits(depth, 4, float(np.abs(lw).max()), 2 * n))
     while True:
         n1 = on_ladder(1.5 * n)
         coarse = _gl_values(base, n, mus, prec)
         fine = _gl_values(base, n1, mus, prec)
-        agree = [engine.upper(engine.difference(c, f)) <= GAP_TOL * m
-                 for c, f, m in zip(coarse, fine, mags)]
-        if all(agree) or on_ladder(1.5 * n1) > MAX_NODES:
+        agree = [not u or engine.upper(engine.difference(c, f)) <= GAP_TOL * m
+                 for c, f, m, u in zip(coarse, fine, mags, usable)]
+        if all(agree) or on_ladder(1.5 * n1) > GAP_NODES:
             break
         n = n1
     rows, worst = [], None
-    for mu, f, z, m, ok in zip(mus, fine, sums, mags, agree):
+    for mu, f, z, m, ok, u in zip(mus, fine, sums, mags, agree, usable):
+        if not u:
+            continue
         rel = ratio = None
         if ok and m > 0:
             rel = abs(_mpc(f) - _mpc(z)) / m
