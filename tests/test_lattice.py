@@ -329,3 +329,21 @@ def test_option_settles_a_disagreement_and_settings_check_the_step():
         Settings(step="-2")
     with pytest.raises(ValueError, match="--lattice-route"):
         Settings(lattice_route="sideways")
+
+
+def test_charges_in_thirds_from_raw_samples():
+    # DLMF 10.35.1 for Q/3 with Q Skellam (a baryon number in quark units):
+    # Z(theta) = exp(lam (cos(theta/3) - 1)), periodic in 6 pi; the samples are
+    # not integers, so '# step: 1/3' makes the run bin them on the lattice
+    rng = np.random.default_rng(3)
+    lam = 2.0
+    k = rng.poisson(lam / 2, 50000) - rng.poisson(lam / 2, 50000)
+    samples = Samples(q=k / 3.0, metadata={"step": "1/3"})
+    density, _ = density_from_samples(samples)
+    result = analyse(density, parse_mu_spec("0:9.42477796076938:7"), samples=samples)
+    lattice = result.table.info["lattice"]
+    assert lattice["step"] == "1/3" and lattice["period"] == "2 pi / (1/3)"
+    for row in result.table.rows:
+        exact = mpmath.exp(lam * (mpmath.cos(as_mpf(row.mu) / 3) - 1))
+        assert row.status == "ok"
+        assert abs(row.value - exact) <= 3 * row.stat_err + row.total_err

@@ -31,6 +31,7 @@ from signfree.analysis.lattice_routes import (check_against_measured, direct_rou
 from signfree.analysis.results import Analysis, ResultTable
 from signfree.analysis.theta import theta_observables
 from signfree.errors import InputError
+from signfree.io.samples import density_from_samples
 from signfree.models.chebyshev import fit_chebyshev
 from signfree.models.lattice import (CONTINUOUS, data_charges, direct_problem, integer_step,
                                      lattice_through, parse_step)
@@ -160,6 +161,18 @@ def resolve_lattice(density, s, samples=None):
                 raise _meta_error(density, "step", f"{meta_text(step)}, but every charge "
                                   f"lies on the coarser lattice of step {shown}: give "
                                   f"--step {meta_text(step)} or --step {shown}")
+    if samples is not None and lattice_through(occupied, step) is None:
+        # raw samples on a lattice the integer binning did not see (thirds,
+        # halves): bin them once more, one bin per lattice point
+        grid = lattice_through(samples.q, step)
+        if grid is not None:
+            pts = grid.points()
+            half = float(step) / 2
+            density, more = density_from_samples(samples, np.append(pts - half, pts[-1] + half))
+            density = dataclasses.replace(density, metadata=dict(density.metadata,
+                                                                 binning="lattice"))
+            notes.extend(more)
+            occupied = data_charges(density, occupied=True)
     lattice = lattice_through(occupied, step)
     if lattice is None:
         where = "--step" if source == "option" else "the metadata"
@@ -170,11 +183,20 @@ def resolve_lattice(density, s, samples=None):
     if lattice is None:
         raise InputError(density.source, f"the charges do not lie on a lattice of step "
                          f"{meta_text(step)}")
+    spacing = integer_step(lattice.index(occupied)) if len(occupied) > 1 else None
+    if spacing is not None and spacing > 1:
+        notes.append(f"the data occupy only every {spacing}th point of the lattice of step "
+                     f"{meta_text(step)}: the smoothed route fills the points between "
+                     "(say so if the charge cannot take them)")
     return ChargeLattice(lattice, source, _complete(density, s), density), notes
 
 
+def _paren(text):
+    return f"({text})" if "/" in text else text
+
+
 def meta_text(step):
-    return str(step.numerator) if step.denominator == 1 else str(step)
+    return str(step)
 
 
 # ------------------------------------------------------------- route
@@ -251,6 +273,8 @@ def analyse_lattice(charge, mus, s, samples=None, notes=()):
                                         and direct_problem(density, lattice) is None):
         outs["direct"] = direct_route(density, mus, s, lattice, complete, fit, samples)
     rows = {name: rows_of(out, s.digits) for name, out in outs.items()}
+    for out in outs.values():
+        notes.extend(out.get("notes", ()))
     check = None
     if "smoothed" in outs and "direct" in outs:
         check = check_against_measured(outs["smoothed"], outs["direct"])
@@ -273,7 +297,7 @@ def analyse_lattice(charge, mus, s, samples=None, notes=()):
         "nodes": lattice.count, "integration": f"exact sum over {lattice.count} lattice points",
         "domain": list(central.domain), "statistical_errors": main["errors"],
         "lattice": dict(lattice.describe(), source=charge.source, complete_range=complete,
-                        period=f"2 pi / {meta_text(lattice.step)}"),
+                        period=f"2 pi / {_paren(meta_text(lattice.step))}"),
         "route": route, "route_reason": reason, "model_err_is": main["model_err_is"],
         "edge_err_is": ("0: the data cover every value of the charge" if complete else
                         "(1 + |value|) T, with T the tail sum beyond the range relative to "

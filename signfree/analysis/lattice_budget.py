@@ -147,9 +147,10 @@ def _slope_chain(central, density, tr):
 
 
 def blocking_errors(samples, mus, values):
-    """Error of the sample mean of exp(i theta Q) per theta: blocking of
-    cos(theta Q_t) and sin(theta Q_t) within each chain, the chains
-    combined with their shares of the total weight."""
+    """(error of the sample mean of exp(i theta Q) per theta, whether every
+    blocking analysis reached its plateau): blocking of cos(theta Q_t) and
+    sin(theta Q_t) within each chain, the chains combined with their shares
+    of the total weight."""
     chains = samples.chains()
     totals = [float(len(q)) if w is None else float(np.sum(w)) for q, w in chains]
     whole = sum(totals)
@@ -157,7 +158,7 @@ def blocking_errors(samples, mus, values):
     levels, where = np.unique(np.asarray(samples.q, dtype=float), return_inverse=True)
     pieces = [where[samples.replicas == lab] for lab in np.unique(samples.replicas)] \
         if samples.replicas is not None else [where]
-    out = []
+    out, plateau = [], True
     for mu in mus:
         t = float(mu)
         var = 0.0
@@ -165,9 +166,11 @@ def blocking_errors(samples, mus, values):
             table = f(t * levels)
             for (q, w), idx, tot in zip(chains, pieces, totals):
                 if len(q) >= 2:
-                    var += (tot / whole) ** 2 * blocking_analysis(table[idx], w).error ** 2
+                    b = blocking_analysis(table[idx], w)
+                    var += (tot / whole) ** 2 * b.error ** 2
+                    plateau = plateau and (b.plateau or b.error == 0)
         out.append(mpmath.sqrt(var))
-    return out
+    return out, plateau
 
 
 def resolution_errors(central, density, values):

@@ -186,27 +186,41 @@ def direct_route(density, mus, s, lattice, complete, fit, samples):
         central = dataclasses.replace(central, tail_slopes=tuple(ends))
     method = direct_method(density, s.errors, samples)
     batch, resamples, seed = [central], [], s.seed
-    if method in ("jackknife", "bootstrap"):
+    # independent chains are the surest witness of slow modes (tunnelling
+    # between sectors) that a blocking analysis of short chains can miss
+    chains = method == "blocking" and len(density.replica_labels) >= 2 \
+        and density.replicas is not None
+    if method in ("jackknife", "bootstrap") or chains:
         if method == "bootstrap" and seed is None:
             seed = int(np.random.SeedSequence().entropy % (1 << 32))
-        values = uncertainty.resampled_values(density, method, s.bootstrap_samples, seed)
+        how = "jackknife" if chains else method
+        values = uncertainty.resampled_values(density, how, s.bootstrap_samples, seed)
         resamples = [direct_model(density, lattice, values=v, complete=complete)
                      for v, _ in values]
     twin = [smoothed_model(fit.model, lattice, complete)] if fit is not None else []
     tr = lattice_transform(batch + twin + resamples, mus, digits=s.digits, check_rows=1)
     K = len(tr.mus)
-    obs = {}
-    if resamples:
+    obs, notes = {}, []
+    if method == "blocking":
+        stat, plateau = blocking_errors(samples, tr.mus, tr.values[0])
+        if not plateau:
+            notes.append("the blocking analysis of exp(i theta Q_t) reached no plateau in "
+                         "some chain: its errors are lower bounds (longer or more chains "
+                         "are needed)")
+        if resamples:
+            spread = uncertainty.spread_relative("jackknife", tr.values[0],
+                                                 tr.values[1 + len(twin):])
+            stat = [max(a, b) for a, b in zip(stat, spread)]
+            obs = {"resamples": resamples, "method": "jackknife"}
+    elif resamples:
         stat = uncertainty.spread_relative(method, tr.values[0], tr.values[1 + len(twin):])
         obs = {"resamples": resamples, "method": method}
-    elif method == "blocking":
-        stat = blocking_errors(samples, tr.mus, tr.values[0])
     elif method in ("poisson", "stated"):
         stat, sigma = linear_errors(central, density, tr, method)
         obs = {"point_sigma": sigma, "slopes": density.kind == "slopes"}
     else:
         stat = [None] * K
-    if method == "blocking":
+    if method == "blocking" and not obs:
         # the histogram of the samples carries counts scaled to the effective
         # size, so the Poisson route gives the observables their errors
         obs = {"point_sigma": linear_errors(central, density, None, "poisson")[1],
@@ -217,8 +231,9 @@ def direct_route(density, mus, s, lattice, complete, fit, samples):
             "model_err_is": ("0: counts are exact" if density.kind == "histogram" else
                              "how far the values as stored (to their written resolution) can "
                              "move Z, a first-order bound"),
-            "errors": uncertainty_text(method, density, s.bootstrap_samples),
-            "bootstrap_seed": seed if method == "bootstrap" else None,
+            "errors": uncertainty_text("chains" if chains else method, density,
+                                       s.bootstrap_samples),
+            "bootstrap_seed": seed if method == "bootstrap" else None, "notes": notes,
             "twin": (fit.model, tr.values[1]) if twin else None, "observable_errors": obs}
 
 
@@ -232,5 +247,7 @@ def uncertainty_text(method, density, samples):
         "stated": "linear propagation of the stated per-point errors through the sum",
         "blocking": "blocking method (Flyvbjerg & Petersen 1989) on the series "
                     "exp(i theta Q_t) of the samples",
+        "chains": f"the larger of the blocking method (Flyvbjerg & Petersen 1989) on the "
+                  f"series exp(i theta Q_t) and the delete-one jackknife over {n_rep} chains",
         "none": "none",
     }[method]

@@ -84,7 +84,8 @@ class Lattice:
 
 
 def _text(x):
-    return str(x.numerator) if x.denominator == 1 else f"{float(x):.15g}"
+    """An exact charge or step as text: '2', '-7/3', or 15 digits for a long fraction."""
+    return str(x) if x.denominator < 1000 else f"{float(x):.15g}"
 
 
 def data_charges(density, occupied=False):
