@@ -10,7 +10,6 @@ Sources:
   = sum_k exp(-s^2 (theta + 2 pi k)^2 / 2) / sum_k exp(-s^2 (2 pi k)^2 / 2).
 - mpmath sums at high precision as the reference for the engine's sums.
 """
-import math
 from fractions import Fraction
 
 import mpmath
@@ -347,3 +346,30 @@ def test_charges_in_thirds_from_raw_samples():
         exact = mpmath.exp(lam * (mpmath.cos(as_mpf(row.mu) / 3) - 1))
         assert row.status == "ok"
         assert abs(row.value - exact) <= 3 * row.stat_err + row.total_err
+
+
+def test_topological_charge_histogram_file_over_minus_pi_to_pi(tmp_path):
+    # DLMF 10.35.1 from a histogram file of a dilute-instanton-gas charge
+    # (Skellam, lam = 1.5) with '# charge: integer': a scan over [-pi, pi]
+    # gives real, even values, right within their errors, theta = -+pi included
+    rng = np.random.default_rng(21)
+    lam = 1.5
+    q = rng.poisson(lam / 2, 100000) - rng.poisson(lam / 2, 100000)
+    values, counts = np.unique(q, return_counts=True)
+    path = tmp_path / "topo.csv"
+    with open(path, "w") as f:
+        f.write("# kind: histogram\n# charge: integer\n# volume: 8\nq,count\n")
+        f.write("".join(f"{v},{c}\n" for v, c in zip(values, counts)))
+    result = analyse(read_density(path), parse_mu_spec(f"-{PI}:{PI}:13"))
+    rows = result.table.rows
+    assert result.table.info["lattice"]["source"] == "metadata"
+    for row in rows:
+        exact = skellam_exact(lam, as_mpf(row.mu))
+        assert row.status == "ok"
+        assert abs(row.value - exact) <= 3 * (row.stat_err or 0) + row.total_err
+    for a, b in zip(rows, rows[::-1]):
+        # Z(-theta) = conj Z(theta) for a real P, exactly in the sum
+        assert abs(a.value - mpmath.conj(b.value)) <= 1e-12
+    theta = result.table.info["theta"]
+    assert abs(theta["b2"] + 1 / 12) <= 3 * theta["b2_total_err"]
+    assert abs(theta["chi_t"] - lam / 8) <= 3 * theta["chi_t_total_err"]

@@ -24,7 +24,6 @@ truncated sum of a zero-free Z has roots of its own, far from |z| = 1, and
 this is how they show). A zero is 'ok' only when both shifts and its
 enclosure are below 10% of its distance to the nearest other zero.
 """
-import math
 import time
 from dataclasses import dataclass, field
 from fractions import Fraction

@@ -21,7 +21,6 @@ import dataclasses
 import time
 from dataclasses import dataclass
 
-import mpmath
 import numpy as np
 
 from signfree import engine

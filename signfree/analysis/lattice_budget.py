@@ -33,7 +33,7 @@ from signfree.engine.balls import arb_of, exp_i, precision_bits, uniform_step
 from signfree.engine.rules import chebyshev_matrix, gauss_legendre, on_ladder
 from signfree.engine.sums import _evaluate, lattice_weights
 from signfree.io.samples import blocking_analysis
-from signfree.models.lattice import LatticeModel, log_resolution
+from signfree.models.lattice import log_resolution
 
 GAP_TOL = mpmath.mpf("1e-3")
 GAP_NODES = 4000        # the report is a diagnosis; it gives up before the run does

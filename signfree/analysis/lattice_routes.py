@@ -45,6 +45,8 @@ def _higher_models(density, fit):
 
 
 def smoothed_route(density, mus, s, lattice, complete, fit):
+    """The Chebyshev model of ln P at the lattice points, its neighbours and
+    resamples in one batch: values, stat_err, model_err (module docstring)."""
     central = smoothed_model(fit.model, lattice, complete)
     neighbours = [smoothed_model(m, lattice, complete) for m in _higher_models(density, fit)]
     method = uncertainty.choose_method(density, s.errors, "chebyshev")
@@ -178,6 +180,9 @@ def _directions(model, ks, factor, lattice, complete):
 
 
 def direct_route(density, mus, s, lattice, complete, fit, samples):
+    """The measured P(Q) summed as they are, with their resamples (and the
+    smoothed model riding along for the aliasing report): values, stat_err,
+    model_err (module docstring)."""
     central = direct_model(density, lattice, complete=complete)
     if fit is not None and fit.consistent:
         # the tail beyond the range continues with the fitted slope at each end

@@ -214,7 +214,7 @@ def lattice_transform(models, mus, digits=12, check_rows=None, gradient=()):
     values = [[None] * K for _ in range(n_rows)]
     used = [0] * K
     resolved = [False] * K
-    z0s, log_z0, grad0 = {}, None, None
+    log_z0, grad0 = None, None
     todo = list(range(K))
     cache = {}
 
@@ -244,8 +244,8 @@ def lattice_transform(models, mus, digits=12, check_rows=None, gradient=()):
                 grad0 = [sum(rows[len(models) + i], arb(0)) / z0[0] for i in range(len(gradient))]
             for i, k in enumerate(ks):
                 for r in range(n_rows):
-                    values[r][k] = sums[r][i] / z0[min(r, len(models) - 1) if r < len(models)
-                                                     else 0]
+                    # gradient rows are normalised by model 0's Z(0)
+                    values[r][k] = sums[r][i] / z0[r if r < len(models) else 0]
                 used[k] = prec
         for k in ks:
             todo.remove(k)
