@@ -13,6 +13,7 @@ Sources:
   r exp(+-i phi), so Z = 2 r^N cos(N phi) vanishes at N phi = pi/2 + k pi.
 - DLMF 10.35.1 (Skellam, as in test_lattice.py): exp(lam (cos theta - 1)) has
   no zeros at all, so every root of the truncated sum is an artefact.
+- A 4 x 4 Ising model by enumeration of all its configurations (common practice).
 """
 import csv
 import json
@@ -230,3 +231,50 @@ def test_bad_lattice_input_gives_one_line_and_writes_nothing(tmp_path, text, arg
     err = res.stderr.strip().splitlines()
     assert len(err) == 1 and word in err[0], res.stderr
     assert not (tmp_path / "out").exists()
+
+
+def test_two_dimensional_ising_with_slow_tunnelling():
+    # A 4 x 4 periodic Ising model at beta = 0.35, P(M) exact by enumeration
+    # of its 65536 configurations (common practice), against a phase-quenched
+    # Metropolis run of 16 short chains that tunnel rarely between +M and -M:
+    # the errors must still hold (three standard errors plus the others) at
+    # every theta up to pi, the period of a step-2 charge
+    from signfree import analyse, parse_mu_spec
+    from signfree.io.samples import Samples, density_from_samples
+    L, beta = 4, 0.35
+    idx = np.arange(L * L).reshape(L, L)
+    right, down = np.roll(idx, -1, axis=1).ravel(), np.roll(idx, -1, axis=0).ravel()
+    conf = ((np.arange(2 ** (L * L))[:, None] >> np.arange(L * L)) & 1) * 2 - 1
+    energy = -(conf * conf[:, right]).sum(1) - (conf * conf[:, down]).sum(1)
+    m = conf.sum(1)
+    weight = np.exp(-beta * energy)
+    ms = np.arange(-L * L, L * L + 1, 2)
+    pm = np.array([weight[m == v].sum() for v in ms])
+
+    # with this seed the chains' blocking analyses alone would claim an error
+    # 13 times too small at some theta
+    rng = np.random.default_rng(6)
+    s = rng.choice([-1, 1], size=(16, L, L))
+    chess = np.add.outer(np.arange(L), np.arange(L)) % 2
+    series = []
+    for t in range(2100):
+        for parity in (0, 1):
+            field = np.roll(s, 1, 1) + np.roll(s, -1, 1) + np.roll(s, 1, 2) + np.roll(s, -1, 2)
+            flip = (rng.random(s.shape) < np.exp(-2 * beta * s * field)) & (chess == parity)
+            s = np.where(flip, -s, s)
+        if t >= 100:
+            series.append(s.sum((1, 2)))
+    series = np.array(series).T
+    samples = Samples(q=series.ravel().astype(float),
+                      replicas=np.repeat(np.arange(16), series.shape[1]),
+                      metadata={"range": "complete"})
+    density, _ = density_from_samples(samples)
+    result = analyse(density, parse_mu_spec("0:3.14159265358979:21"), samples=samples)
+    assert "jackknife over 16 chains" in result.table.info["statistical_errors"]
+    for row in result.table.rows:
+        t = float(row.mu)
+        exact = float((pm * np.cos(t * ms)).sum() / pm.sum())
+        if row.status == "ok":
+            assert abs(complex(row.value) - exact) <= 3 * float(row.stat_err or 0) + \
+                float(row.total_err)
+    assert sum(r.status == "ok" for r in result.table.rows) >= 10
