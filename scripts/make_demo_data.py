@@ -73,6 +73,7 @@ def header(kind, seed):
         lines.append(f"# kind: {kind}")
     lines += [f"# volume: {VOLUME}",
               "# symmetry: even",
+              "# charge: continuous",
               f"# scenario: {SCENARIO}"]
     made = MADE_BY if seed is None else f"{MADE_BY} (seed {seed})"
     lines.append(f"# made by: {made}")
@@ -202,6 +203,10 @@ phase-quenched ensemble (normalised to Int rho dq = 1). signfree.scenarios
 computes it ({DPS} significant digits) from the inverse Laplace integral of
 the moment generating function (I0(sqrt(b^2 + s^2)) / I0(b))^{VOLUME} along
 the vertical line through the real saddle point.
+
+The charge takes every real value, but the tables sit on an integer grid: the
+files say so with `# charge: continuous`, so that Z stays the integral and
+not the sum over the grid points.
 
 ## Files
 

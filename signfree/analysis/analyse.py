@@ -17,6 +17,7 @@ import numpy as np
 from signfree import engine, progress
 from signfree.analysis import budget, observables, uncertainty
 from signfree.analysis.cumulant import analyse_cumulant
+from signfree.analysis.lattice import analyse_lattice, resolve_lattice
 from signfree.analysis.results import Analysis, ResultTable, Row, density_rises_at_edge
 from signfree.analysis.settings import MODELS, check_digits, parse_mu_spec, settings_of
 from signfree.models.chebyshev import fit_chebyshev
@@ -58,10 +59,16 @@ def analyse(density, mus, settings=None, samples=None, **changes):
                                                          degree=None if s.degree == "per-mu"
                                                          else s.degree))
         result = analyse_cumulant(density, mus, s, samples, reference)
-    elif s.degree == "per-mu":
-        result = _analyse_per_mu(density, mus, s)
     else:
-        result = _analyse_fixed(density, mus, s)
+        # charges on a lattice: the periodic sum (signfree.analysis.lattice)
+        charge, notes = resolve_lattice(density, s, samples)
+        if charge is not None:
+            return analyse_lattice(charge, mus, s, samples, notes)
+        if s.degree == "per-mu":
+            result = _analyse_per_mu(density, mus, s)
+        else:
+            result = _analyse_fixed(density, mus, s)
+        result.table.info["notes"].extend(notes)
     if observables.wanted(s, off_axis):
         observables.attach_observables(result, off_axis, s)
     return result

@@ -162,10 +162,19 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
     routes = {}
     notes = sample_notes + list(fit.notes)
     chosen_rows = None
+    # the routes compared here are integrals; a lattice charge is summed by
+    # signfree run (signfree.analysis.lattice), and the note says so
+    from signfree.analysis.lattice import resolve_lattice
+    from signfree.analysis.settings import Settings
+    lattice, _ = resolve_lattice(density, Settings(), data if isinstance(data, Samples) else None)
+    if lattice is not None:
+        notes.append("the charge lies on a lattice: these routes are integrals, which miss the "
+                     "aliased terms of its periodic sum near mu = pi/step; signfree run sums "
+                     "over the lattice")
     for degree in [chosen.degree] + _neighbour_degrees(density, chosen):
         progress.report(f"route chebyshev:{degree}")
         result = analyse(density, mus, model="chebyshev", degree=degree, digits=digits,
-                         parity=chosen.parity)
+                         parity=chosen.parity, step="continuous")
         routes[result.model.label] = result.table.rows
         if degree == chosen.degree:
             chosen_rows = result.table.rows
@@ -184,7 +193,7 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
         routes[cm.label] = cumulant_rows(cm, mus, reference=chosen_rows, radius=radius,
                                          digits=digits)
     progress.report("route piecewise")
-    pw = analyse(density, mus, model="piecewise", digits=digits)
+    pw = analyse(density, mus, model="piecewise", digits=digits, step="continuous")
     routes["piecewise"] = pw.table.rows
     info = {"cumulants_from": source, "notes": notes,
             "kappa": [mpmath.nstr(k, 15) for k in kappa],

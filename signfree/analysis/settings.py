@@ -15,6 +15,7 @@ from signfree.analysis.weights import parse_observables
 MODELS = ("chebyshev", "piecewise", "cumulant")
 ERROR_METHODS = ("auto", "jackknife", "bootstrap", "covariance", "none")
 PARITIES = ("even", "odd", "none")
+LATTICE_ROUTES = ("auto", "direct", "smoothed")
 
 
 @dataclass(frozen=True)
@@ -39,6 +40,13 @@ class Settings:
               with (an io.references.ImaginaryReference), or None
     volume_order   order of the fit in 1/V of the infinite-volume limit:
               'auto' (chosen per mu from the errors) or a fixed power
+    step      charge lattice: None (metadata, else detection), 'continuous'
+              (the integral), or the lattice step as a positive Fraction
+              (Z is then the periodic sum over the lattice points)
+    lattice_route  for lattice charges: 'direct' (the measured P(Q)),
+              'smoothed' (the Chebyshev model at the lattice points) or 'auto'
+    complete_range  the data cover every value the charge can take (nothing
+              lies beyond the range); None: the metadata 'range: complete'
     """
 
     model: str = "chebyshev"
@@ -54,6 +62,9 @@ class Settings:
     observables: tuple = ()
     imaginary_reference: object = None
     volume_order: object = "auto"
+    step: object = None
+    lattice_route: str = "auto"
+    complete_range: bool = None
 
     def __post_init__(self):
         if self.model not in MODELS:
@@ -75,6 +86,15 @@ class Settings:
                                                  and 0 <= self.volume_order <= 4)):
             raise ValueError(f"--volume-order {self.volume_order!r}: expected 'auto' or an "
                              "integer from 0 to 4")
+        if self.step is not None:
+            from signfree.models.lattice import parse_step
+            try:
+                object.__setattr__(self, "step", parse_step(self.step))
+            except ValueError as exc:
+                raise ValueError(f"--{exc}") from None
+        if self.lattice_route not in LATTICE_ROUTES:
+            raise ValueError(f"--lattice-route {self.lattice_route!r}: expected one of "
+                             f"{', '.join(LATTICE_ROUTES)}")
         if not (self.degree is None or self.degree == "per-mu" or isinstance(self.degree, int)):
             raise ValueError(f"--degree {self.degree!r}: expected an integer or 'per-mu'")
         if isinstance(self.observables, str):

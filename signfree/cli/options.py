@@ -4,7 +4,7 @@ uses. The analysis options fill the fields of
 import argparse
 import sys
 
-from signfree.analysis.settings import ERROR_METHODS, MODELS, Settings
+from signfree.analysis.settings import ERROR_METHODS, LATTICE_ROUTES, MODELS, Settings
 
 
 class Parser(argparse.ArgumentParser):
@@ -135,6 +135,22 @@ def add_analysis_options(p):
                    help="also write covariance.csv: the covariance of Z(mu_i)/Z(0) across "
                         "the scan from the resampled fits (needs replicas)")
 
+    add_lattice_options(p)
+
+
+def add_lattice_options(p):
+    """--step, --lattice-route, --complete-range: charges on a lattice."""
+    p.add_argument("--step", metavar="S|integer|continuous",
+                   help="the charge takes only the values of a lattice of step S (Z is then "
+                        "the periodic sum over them); 'continuous' integrates (default: "
+                        "metadata, else detection)")
+    p.add_argument("--lattice-route", choices=LATTICE_ROUTES, default="auto",
+                   help="for lattice charges: sum the measured P(Q) (direct), the smoothed "
+                        "model at the lattice points (smoothed), or choose (auto)")
+    p.add_argument("--complete-range", action="store_true", default=None,
+                   help="the data cover every value the charge can take: nothing lies "
+                        "beyond the range (a finite system's magnetisation)")
+
 
 def add_volume_options(p):
     """--volume-order: the fit in 1/V of the infinite-volume limit."""
@@ -174,6 +190,9 @@ def settings_from_args(args):
         "observables": getattr(args, "observables", None),
         "imaginary_reference": _imaginary_reference(getattr(args, "imaginary_reference", None)),
         "volume_order": getattr(args, "volume_order", None),
+        "step": getattr(args, "step", None),
+        "lattice_route": getattr(args, "lattice_route", None),
+        "complete_range": getattr(args, "complete_range", None),
     }
     if given["order"] is not None and given["model"] != "cumulant":
         raise ValueError(f"--order {given['order']}: the order of the cumulant expansion "

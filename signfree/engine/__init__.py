@@ -13,6 +13,7 @@ Modules:
   closed_forms   piecewise-linear ln rho (exact segments), cumulant series
   moments        cumulants of a model's density by quadrature
   complex_mu     Z and Z' at complex mu (for zeros and cumulant radii)
+  sums           exact sums over a charge lattice (theta terms, magnetisation)
 
 The engine takes models through their shared interface: each model names the
 form of its integrand (``model.integrand``), and :func:`transform` sends the
@@ -42,6 +43,10 @@ def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=(
         from signfree.engine.transforms import chebyshev_transform
         return chebyshev_transform(models, mus, digits=digits, certify=certify,
                                    check_rows=check_rows, gradient=gradient)
+    if form == "lattice-sum":
+        from signfree.engine.sums import lattice_transform
+        return lattice_transform(models, mus, digits=digits, check_rows=check_rows,
+                                 gradient=gradient)
     if gradient:
         raise ValueError(f"models of form {form!r} have no coefficients to differentiate")
     if form == "piecewise-linear":

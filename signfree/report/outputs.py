@@ -69,8 +69,14 @@ def print_report(result, folder, reference=None, out=sys.stdout):
         fit = f", chi2/dof = {info['chi2_per_dof']:.3g} ({info['degree_criterion']})"
     print(f"{result.density.source}: {input_text(result)}; "
           f"model {info['model']} parity {info['parity']}{fit}", file=out)
-    print(f"integration: {info['integration']}, {info['precision_digits']} digits working "
-          f"precision, {info['nodes']} nodes, {result.seconds:.2f} s", file=out)
+    if "lattice" in info:
+        lat = info["lattice"]
+        print(f"sum: exact over {lat['points']} lattice points of step {lat['step']} (period "
+              f"{lat['period']}), {info['precision_digits']} digits working precision, "
+              f"{result.seconds:.2f} s; route {info['route']}: {info['route_reason']}", file=out)
+    else:
+        print(f"integration: {info['integration']}, {info['precision_digits']} digits working "
+              f"precision, {info['nodes']} nodes, {result.seconds:.2f} s", file=out)
     if info.get("misfit"):
         print(f"MISFIT: {info['misfit']}", file=out)
     for note in info["notes"]:
@@ -79,6 +85,9 @@ def print_report(result, folder, reference=None, out=sys.stdout):
     counts = ", ".join(f"{v} {k}" for k, v in table.status_counts().items() if v)
     print(f"statuses: {counts}; statistical errors: {info['statistical_errors']}", file=out)
     print(horizon_line(info["horizon"]), file=out)
+    if info.get("theta"):
+        from signfree.analysis.theta import theta_line
+        print(theta_line(info["theta"]), file=out)
     if result.observables is not None:
         print(observables_text(result.observables), file=out)
     if folder is not None:
