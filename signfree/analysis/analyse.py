@@ -212,7 +212,8 @@ def _structure(density, model, fit, values, mus):
     sigma = fit.sigma if fit is not None else density.error
     if sigma is None:
         return [None] * len(mus)
-    res, keep = budget.residuals(density, model, fit.correction if fit is not None else None)
+    res, keep = budget.residuals(density, model, fit.correction if fit is not None else None,
+                                 sigma)
     if fit is None:
         res = np.zeros_like(res)   # the piecewise model passes through its data
     if density.kind == "histogram" and fit is None:

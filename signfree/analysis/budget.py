@@ -130,11 +130,13 @@ def model_transform(model, top):
     return nu, spec[keep] * np.exp(1j * nu * (a - c)) / f.sum(), c
 
 
-def residuals(density, model, correction=None):
+def residuals(density, model, correction=None, sigma=None):
     """(residuals in the measured quantity, the mask of fitted histogram
     bins): data minus the model's prediction (interval-mean slopes for
     slopes; ln rho, or the bin average for a corrected histogram, up to the
-    free constant, which is removed)."""
+    free constant, which is removed: as the weighted mean with the fit's
+    errors ``sigma`` when given, which is what a weighted fit's constant
+    makes of it, else the plain mean)."""
     if density.kind == "slopes":
         h = density.width
         pred = (model.log_density(density.q + h / 2) - model.log_density(density.q - h / 2)) / h
@@ -144,6 +146,9 @@ def residuals(density, model, correction=None):
     if correction is not None and keep is not None:
         y = y - np.asarray(correction)[keep]
     res = y - model.log_density(q)
+    if sigma is not None:
+        w = 1 / np.asarray(sigma, dtype=float) ** 2
+        return res - np.sum(w * res) / np.sum(w), keep
     return res - res.mean(), keep
 
 

@@ -132,7 +132,7 @@ def _add_structure(analysis, observables, values, mus, volume):
     fit, density, model = analysis.fit, analysis.density, analysis.model
     if fit is None or fit.sigma is None:
         return
-    res, keep = budget.residuals(density, model, fit.correction)
+    res, keep = budget.residuals(density, model, fit.correction, fit.sigma)
     zvals = [r.value for r in analysis.table.rows]
 
     def bound(poly):

@@ -85,7 +85,7 @@ def _spread(method, points):
 
 def _structure_shift(density, fit, zero, ev):
     """dZ / |Z'| at the zero (module docstring), as mpf."""
-    res, keep = budget.residuals(density, fit.model, fit.correction)
+    res, keep = budget.residuals(density, fit.model, fit.correction, fit.sigma)
     omegas, weights, F = budget.ripple_modes(density, fit.model, fit.sigma, res,
                                              abs(float(zero.re)), keep)
     if F is None:
