@@ -165,6 +165,20 @@ def _log10_abs(z):
     return math.log10(int(man)) + int(exp) * math.log10(2)
 
 
+def _radius(z):
+    return upper(acb(z.real.rad(), z.imag.rad()))
+
+
+def _worst(ratios, k, check_rows):
+    """The largest radius at mu_k relative to |value| (checked rows) or to
+    |row 0| (the other rows, which need row 0's absolute accuracy)."""
+    top = max(relative_radius(ratios[r][k]) for r in range(check_rows))
+    scale = abs_mid(ratios[0][k])
+    rest = [_radius(ratios[r][k]) / scale if scale > 0 else mpmath.inf
+            for r in range(check_rows, len(ratios))]
+    return max([top] + rest)
+
+
 def _row_shifts(coef_rows):
     """max p_r on [-1, 1] per row (double; any value works, the same one
     enters numerator and denominator)."""
@@ -210,7 +224,7 @@ def path_transform(coef_rows, domain, mus, groups, normaliser, digits, check_row
         if rel > tol / 100 and prec0 < MAX_PREC:
             prec0 = _raise(prec0, rel * 10, tol)
             continue
-        if err <= tol / 100 * abs_mid(z0[0]) or n0f > MAX_NODES:
+        if err <= tol / 10 ** 6 * abs_mid(z0[0]) or n0f > MAX_NODES:
             break
         scale *= 1.5
     with ctx.workprec(prec0):
@@ -230,8 +244,8 @@ def path_transform(coef_rows, domain, mus, groups, normaliser, digits, check_row
             with ctx.workprec(prec):
                 ratios = [[z / (z0[r] if r < R else z0[0]) for z in Z[r]]
                           for r in range(R + G)]
-            worst = max(relative_radius(ratios[r][k]) for r in range(check_rows)
-                        for k in range(len(ms)))
+            # rows past check_rows (replicas) need the absolute accuracy of row 0
+            worst = max(_worst(ratios, k, check_rows) for k in range(len(ms)))
             if worst > tol / 10 and prec < MAX_PREC:
                 prec = _raise(prec, worst, tol)
                 continue
@@ -251,8 +265,10 @@ def path_transform(coef_rows, domain, mus, groups, normaliser, digits, check_row
             rad_ok = all(relative_radius(ratios[r][i]) <= tol / 10 for r in range(check_rows))
             resolved[k] = rad_ok and diffs[i] <= tol * mag
             for r in range(check_rows):
+                # twice the disagreement: the 1.5 n rule's own error is not zero
+                # where the panels are not yet in the asymptotic regime
                 z = ratios[r][i]
-                quad[r][k] = diffs[i] + upper(acb(z.real.rad(), z.imag.rad()))
+                quad[r][k] = 2 * diffs[i] + upper(acb(z.real.rad(), z.imag.rad()))
             heights[k] = g.path.height * half
             zk = abs_mid(Z[0][i])
             orders[k] = float(peak[i] - mpmath.log10(zk)) if zk > 0 else math.inf
