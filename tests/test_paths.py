@@ -237,3 +237,31 @@ def test_replicas_and_gradients_ride_along_the_path():
             assert abs(got - exact) <= 1e-11 * abs(exact)
         g0 = engine.to_mpf(grad0[0].real)
         assert abs(g0 - (2 / mpmath.mpf(L) ** 2 - 1)) < 1e-11
+
+
+def test_rule_cache_stays_within_its_budget(tmp_path, monkeypatch):
+    # Gauss-Legendre rules read back from the disk cache equal Arb's own
+    # (arb_hypgeom_legendre_p_ui_root), and the cache keeps within its byte budget.
+    from signfree.engine import rules
+    monkeypatch.setenv("SIGNFREE_CACHE", str(tmp_path))
+    monkeypatch.setattr(rules, "_NODES", {})
+    for n in (256, 282, 311):
+        rules.gauss_legendre(n, 128)
+    sizes = {p.name: p.stat().st_size for p in tmp_path.glob("gauss-legendre-*.txt")}
+    assert len(sizes) == 3
+    # a rule at a higher precision makes the lower one redundant
+    monkeypatch.setattr(rules, "_NODES", {})
+    rules.gauss_legendre(256, 256)
+    names = {p.name for p in tmp_path.glob("gauss-legendre-*.txt")}
+    assert "gauss-legendre-256-128.txt" not in names and "gauss-legendre-256-256.txt" in names
+    # a tight budget evicts the least recently used
+    rules._evict(tmp_path, sizes["gauss-legendre-311-128.txt"] + 10)
+    left = sorted(p.name for p in tmp_path.glob("gauss-legendre-*.txt"))
+    assert len(left) == 1
+    monkeypatch.setattr(rules, "_NODES", {})
+    xs, ws = rules.gauss_legendre(256, 256)
+    with ctx.workprec(256):
+        x0, w0 = arb.legendre_p_root(256, 0, weight=True)
+        total = sum(ws, arb(0))
+    assert xs[0].overlaps(x0) and ws[0].overlaps(w0)
+    assert total.overlaps(arb(2)) and total.rad() < 1e-60   # weights sum to 2 (common practice)

@@ -13,9 +13,16 @@ alone costs about a second of start-up). Bad input gives one line on stderr,
 exit status 2, and nothing is written.
 """
 import importlib
+import os
 import sys
 
-from signfree.cli.options import Parser
+# The least-squares problems of a run are small: a BLAS thread pool only spins
+# idle on them (and costs most on a busy machine). Set before numpy loads; a
+# user's own setting wins.
+for _name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_name, "1")
+
+from signfree.cli.options import Parser  # noqa: E402  (after the BLAS setting)
 
 # command -> (module, help text shown by ``signfree --help``)
 COMMANDS = {

@@ -91,13 +91,17 @@ def _levels(vmax):
                            vmax * np.linspace(0, 1, LEVELS + 1)[1:]])
 
 
-def _largest(coef, mus, half, even, vmax):
+def _largest(coef, mus, half, even, vmax, real_only=False):
     """R[k, i]: the largest ln |integrand| (dq included) on the rectangle of
     height v_i for mu_k, with the profile re p(u + i v_i) kept for the
     panels."""
     v = _levels(vmax)
     u = np.linspace(0.0 if even else -1.0, 1.0, SAMPLES)
-    P = C.chebval(u[None, :] + 1j * v[:, None], coef).real
+    # only the heights on the side(s) the mus can use: Im q* has the sign of mu
+    lo = LEVELS if (real_only or mus.min(initial=0.0) >= 0) else 0
+    hi = LEVELS + 1 if (real_only or mus.max(initial=0.0) <= 0) else 2 * LEVELS + 1
+    P = np.full((len(v), len(u)), np.inf)
+    P[lo:hi] = C.chebval(u[None, :] + 1j * v[lo:hi, None], coef).real
     H = P.max(axis=1)
     mu_y = np.outer(mus, half * v)                        # mu Im q
     R = H[None, :] - mu_y
@@ -221,7 +225,7 @@ def plan(coef, domain, mus, digits, even=False, force_real=False):
     width = math.log(math.sqrt(2 * math.pi) * sd)
     vmax = max(1.5 * float(np.abs(mus).max(initial=0.0)) * half * sd * sd, 1e-3)
     for _ in range(4):
-        v, u, P, R = _largest(coef, mus, half, even, vmax)
+        v, u, P, R = _largest(coef, mus, half, even, vmax, force_real)
         best = R.argmin(axis=1)
         if force_real or (best.min() > 0 and best.max() < 2 * LEVELS) or vmax > 8:
             break

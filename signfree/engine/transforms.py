@@ -259,7 +259,7 @@ def _shifted(models, rows, domain, mus, digits, var, check_rows, gradient, certi
     groups = paths.plan(models[0].coef, domain, mf, digits, even)
     if all(g.path.height == 0 for g in groups):
         return None
-    normaliser = paths.plan(models[0].coef, domain, [0.0], digits, even)[0]
+    normaliser = paths.plan(models[0].coef, domain, [0.0], digits, even, force_real=True)[0]
     out = path_sums.path_transform(rows, domain, mus, groups, normaliser, digits,
                                    check_rows, tuple(gradient))
     tr = Transform(**out)
