@@ -206,6 +206,20 @@ def _raise(prec, worst, tol):
     return min(MAX_PREC, int(math.ceil(extra / 64) * 64))
 
 
+def _bound(coef, path, domain, mus, scale, shift, z0):
+    """The Bernstein-ellipse bound of the quadrature error at every mu
+    (:func:`signfree.engine.paths.quadrature_bound`) relative to Z(0), as
+    mpf; doubled for a half path (Z is twice its real part)."""
+    from signfree.engine.paths import quadrature_bound
+    half = 0.5 * (float(domain[1]) - float(domain[0]))
+    counts = [panel_count(math.ceil(p.nodes * scale)) for p in path.panels]
+    logs = quadrature_bound(coef, path, half, [float(m) for m in mus], counts)
+    base = mpmath.log(abs_mid(z0)) + shift
+    factor = 2 if path.half else 1
+    return [factor * mpmath.exp(mpmath.mpf(float(b)) - base) if np.isfinite(b) else mpmath.inf
+            for b in logs]
+
+
 def path_transform(coef_rows, domain, mus, groups, normaliser, digits, check_rows, grad_ks):
     """Z(mu)/Z(0) along the planned paths (``groups`` from
     :func:`signfree.engine.paths.plan`, ``normaliser`` the real-axis group
@@ -236,6 +250,7 @@ def path_transform(coef_rows, domain, mus, groups, normaliser, digits, check_row
         scale *= 1.5
     with ctx.workprec(prec0):
         grad0 = [z0[R + i] / z0[0] for i in range(G)]
+    bound0 = _bound(coef_rows[0], normaliser.path, domain, [0], scale, shifts[0], z0[0])[0]
     log_z0 = [shifts[r] + float(z0[r].real.log().mid()) for r in range(R)]
     values = [[None] * K for _ in range(R + G)]
     quad = [[None] * K for _ in range(R)]
@@ -266,6 +281,7 @@ def path_transform(coef_rows, domain, mus, groups, normaliser, digits, check_row
             scale *= 1.5
         precs.append(prec)
         nodes.append(n)
+        bounds = _bound(coef_rows[0], g.path, domain, ms, scale, shifts[0], z0[0])
         for i, k in enumerate(range(g.lo, g.hi)):
             for r in range(R + G):
                 values[r][k] = ratios[r][i]
@@ -273,10 +289,12 @@ def path_transform(coef_rows, domain, mus, groups, normaliser, digits, check_row
             rad_ok = min(ratios[r][i].rel_accuracy_bits() for r in range(check_rows)) >= want
             resolved[k] = rad_ok and diffs[i] <= tol * mag
             for r in range(check_rows):
-                # twice the disagreement: the 1.5 n rule's own error is not zero
-                # where the panels are not yet in the asymptotic regime
+                # twice the disagreement (the 1.5 n rule's own error is not zero
+                # where panels are not yet in the asymptotic regime), plus the
+                # Bernstein-ellipse bounds of the rules for Z(mu) and for Z(0)
                 z = ratios[r][i]
-                quad[r][k] = 2 * diffs[i] + upper(acb(z.real.rad(), z.imag.rad()))
+                quad[r][k] = 2 * diffs[i] + bounds[i] + bound0 * mag \
+                    + upper(acb(z.real.rad(), z.imag.rad()))
             heights[k] = g.path.height * half
             orders[k] = float(peak[i] - _log10_abs(Z[0][i]))
     grad = ([values[R + i] for i in range(G)], grad0) if G else None

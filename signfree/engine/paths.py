@@ -97,17 +97,20 @@ def _largest(coef, mus, half, even, vmax, real_only=False):
     panels."""
     v = _levels(vmax)
     u = np.linspace(0.0 if even else -1.0, 1.0, SAMPLES)
-    # only the heights on the side(s) the mus can use: Im q* has the sign of mu
-    lo = LEVELS if (real_only or mus.min(initial=0.0) >= 0) else 0
-    hi = LEVELS + 1 if (real_only or mus.max(initial=0.0) <= 0) else 2 * LEVELS + 1
+    mr, mi = mus.real, mus.imag
+    # only the heights on the side(s) the mus can use: Im q* has the sign of Re mu
+    lo = LEVELS if (real_only or mr.min(initial=0.0) >= 0) else 0
+    hi = LEVELS + 1 if (real_only or mr.max(initial=0.0) <= 0) else 2 * LEVELS + 1
     P = np.full((len(v), len(u)), np.inf)
     P[lo:hi] = C.chebval(u[None, :] + 1j * v[lo:hi, None], coef).real
-    H = P.max(axis=1)
-    mu_y = np.outer(mus, half * v)                        # mu Im q
-    R = H[None, :] - mu_y
+    mu_y = np.outer(mr, half * v)                         # Re mu Im q
+    if not mi.any():
+        R = P.max(axis=1)[None, :] - mu_y
+    else:   # |exp(i mu q)| = exp(-Re mu Im q - Im mu Re q)
+        R = (P[None, :, :] - np.multiply.outer(mi, half * u)[:, None, :]).max(axis=2) - mu_y
     zero = LEVELS
     for col in ([-1] if even else [0, -1]):
-        edge = P[:, col][None, :] - mu_y
+        edge = P[:, col][None, :] - mu_y - (mi * half * u[col])[:, None]
         # the vertical edge from 0 to v_i: running maximum outward from v = 0
         up = np.maximum.accumulate(edge[:, zero:], axis=1)
         down = np.maximum.accumulate(edge[:, zero::-1], axis=1)[:, ::-1]
@@ -116,12 +119,11 @@ def _largest(coef, mus, half, even, vmax, real_only=False):
 
 
 def _nodes_for(coef, x0, x1, mus, half, log_tol):
-    # mus, log_tol: arrays of representative mu of the group and their
-    # absolute tolerances (ln)
     """Gauss-Legendre nodes on the panel x0..x1 from the error bound
     (64/15) M rho^(-2n) / (rho^2 - 1) on the Bernstein ellipse E_rho
     (Trefethen, ATAP ch. 19, Theorem 19.3), M = max |integrand| on E_rho,
-    minimised over rho."""
+    minimised over rho; ``mus`` representative mu of the group and
+    ``log_tol`` their absolute tolerances (ln)."""
     c, h = 0.5 * (x0 + x1), 0.5 * (x1 - x0)
     if abs(h) == 0:
         return MIN_PANEL_NODES
@@ -130,7 +132,7 @@ def _nodes_for(coef, x0, x1, mus, half, log_tol):
     x = c + h * u
     with np.errstate(all="ignore"):
         re = C.chebval(x, coef).real
-        lm = np.max([(re - mu * half * x.imag).max(axis=1) - t for mu, t in zip(mus, log_tol)],
+        lm = np.max([(re - _tilt(mu, x, half)).max(axis=1) - t for mu, t in zip(mus, log_tol)],
                     axis=0) + math.log(half)
         n = (lm + math.log(abs(h)) + math.log(64 / 15) - np.log(_RHOS ** 2 - 1)) \
             / (2 * np.log(_RHOS))
@@ -138,6 +140,45 @@ def _nodes_for(coef, x0, x1, mus, half, log_tol):
     if not len(n):
         return 4 * PANEL_NODES
     return int(max(MIN_PANEL_NODES, math.ceil(1.1 * n.min())))
+
+
+_BOUND_THETA = np.linspace(0, 2 * np.pi, 257)[:-1]
+
+
+def quadrature_bound(coef, path, half, mus, counts):
+    """ln of an upper bound of the Gauss-Legendre error along ``path`` for
+    every mu (floats), with ``counts`` nodes on the panels: the sum over
+    panels of min over rho of |h| (64/15) M_rho rho^(-2n) / (rho^2 - 1)
+    (Trefethen, ATAP ch. 19, Theorem 19.3), M_rho the largest
+    |exp(p(x) + i mu q)| dq/dx on the Bernstein ellipse E_rho of the panel,
+    taken from 256 points of its boundary (where the maximum lies, by the
+    maximum modulus principle), in double precision. The integrand is the
+    unshifted exp(p); for a half path the bound is for that half."""
+    mus = np.asarray(mus, dtype=complex)
+    z = np.exp(1j * _BOUND_THETA)
+    u = 0.5 * (_RHOS[:, None] * z[None, :] + 1.0 / (_RHOS[:, None] * z[None, :]))
+    total = np.full(len(mus), -np.inf)
+    for pnl, n in zip(path.panels, counts):
+        c, h = 0.5 * (pnl.start + pnl.end), 0.5 * (pnl.end - pnl.start)
+        if abs(h) == 0:
+            continue
+        x = c + h * u
+        with np.errstate(all="ignore"):
+            re = C.chebval(x, coef).real                       # rho x theta
+            # max over theta of re p - mu half Im x, for every mu: rho x K
+            lm = np.max(re[:, :, None] - np.multiply.outer(half * x.imag, mus.real)
+                        - np.multiply.outer(half * x.real, mus.imag), axis=1)
+            b = lm + math.log(half) + math.log(abs(h)) + math.log(64 / 15) \
+                - np.log(_RHOS ** 2 - 1)[:, None] - 2 * n * np.log(_RHOS)[:, None]
+        b = np.where(np.isfinite(b), b, np.inf).min(axis=0)
+        total = np.logaddexp(total, b)
+    return total
+
+
+def _tilt(mu, x, half):
+    """-ln |exp(i mu q)| up to a constant: Re mu Im q + Im mu Re q, q = half x."""
+    mu = complex(mu)
+    return half * (mu.real * np.imag(x) + mu.imag * np.real(x))
 
 
 def _runs(active):
@@ -172,8 +213,8 @@ def _path(coef, level, v, u, P, mus, half, even, log_floor, log_tol):
     |integrand| too small to matter, ``log_tol`` the ln of the absolute
     quadrature tolerance)."""
     y = float(v[level])
-    shift = max(-mu * half * y - f for mu, f in zip(mus, log_floor)) + math.log(half)
-    active = P[level] + shift > 0
+    active = np.max([P[level] - _tilt(mu, u + 1j * y, half) - f for mu, f in zip(mus, log_floor)],
+                    axis=0) + math.log(half) > 0
     cuts = [(u[i] - u[0]) / (u[-1] - u[0]) for i in _runs(active)]
     # widen each cut by a grid step towards the inactive side (the crossing lies between samples)
     step = (u[1] - u[0]) / (u[-1] - u[0])
@@ -188,7 +229,8 @@ def _path(coef, level, v, u, P, mus, half, even, log_floor, log_tol):
 
     def vertical(col, start, end):
         prof = np.array([P[i, col] for i in idx]) + math.log(half) + \
-            np.array([max(-mu * half * t - f for mu, f in zip(mus, log_floor)) for t in ts])
+            np.max([-_tilt(mu, u[col] + 1j * ts, half) - f for mu, f in zip(mus, log_floor)],
+                   axis=0)
         act = prof > 0
         cuts = [abs(ts[i]) / abs(y) for i in _runs(act)]
         if start.imag != 0:      # walked from the top down
@@ -213,17 +255,21 @@ def magnitude_bits(coef, path):
     return math.log2(tot + 2.0)
 
 
-def plan(coef, domain, mus, digits, even=False, force_real=False):
-    """Groups of consecutive mu of the list ``mus`` (floats) with their
-    paths, planned for the model ``coef`` on ``domain``."""
+def plan(coef, domain, mus, digits, even=False, force_real=False, common=False):
+    """Groups of consecutive mu of the list ``mus`` (floats, or complex
+    numbers) with their paths, planned for the model ``coef`` on ``domain``;
+    ``common``: one group for all of them, on the height that keeps the
+    largest excess smallest (the real axis when it is within the
+    allowance)."""
     coef = np.asarray(coef, dtype=float)
     a, b = float(domain[0]), float(domain[1])
     half = 0.5 * (b - a)
-    mus = np.asarray(mus, dtype=float)
+    mus = np.asarray(mus)
+    mus = mus.astype(complex if np.iscomplexobj(mus) else float)
     sd, pmax = _bump_width(coef)
     # log |Z| of the Gaussian saddle estimate: the path's peak times the bump width
     width = math.log(math.sqrt(2 * math.pi) * sd)
-    vmax = max(1.5 * float(np.abs(mus).max(initial=0.0)) * half * sd * sd, 1e-3)
+    vmax = max(1.5 * float(np.abs(mus.real).max(initial=0.0)) * half * sd * sd, 1e-3)
     for _ in range(4):
         v, u, P, R = _largest(coef, mus, half, even, vmax, force_real)
         best = R.argmin(axis=1)
@@ -237,7 +283,11 @@ def plan(coef, domain, mus, digits, even=False, force_real=False):
     K = len(mus)
     groups, k = [], 0
     while k < K:
-        if force_real or excess[k, zero] <= ALLOWANCE:
+        if common and not force_real:
+            j = K
+            worst = excess.max(axis=0)
+            level = zero if worst[zero] <= ALLOWANCE else int(worst.argmin())
+        elif force_real or excess[k, zero] <= ALLOWANCE:
             j = k + 1
             while j < K and (force_real or excess[j, zero] <= ALLOWANCE):
                 j += 1

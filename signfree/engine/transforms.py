@@ -247,18 +247,20 @@ def _check_set(mus, values, chunks):
 
 
 def _shifted(models, rows, domain, mus, digits, var, check_rows, gradient, certify):
-    """The transform along paths through the saddle, or None when the real
-    axis is the best path for every mu (or the scan is too shallow for a
-    shifted path to gain: Gaussian depth estimate below the allowance)."""
+    """(the transform along paths through the saddle, None) or, when the
+    real axis is the best path for every mu, (None, the planned real-axis
+    cancellation per mu in decimal orders, or None when the scan is too
+    shallow for a shifted path to gain: Gaussian depth estimate below the
+    allowance)."""
     from signfree.engine import path_sums, paths
     top = max(float(m) ** 2 for m in mus) * var / (2 * math.log(10))
     if top * math.log(10) <= paths.ALLOWANCE:
-        return None
+        return None, None
     even = _is_even(rows, domain)
     mf = [float(m) for m in mus]
     groups = paths.plan(models[0].coef, domain, mf, digits, even)
     if all(g.path.height == 0 for g in groups):
-        return None
+        return None, [max(r, 0.0) / math.log(10) for g in groups for r in g.log_ratio]
     normaliser = paths.plan(models[0].coef, domain, [0.0], digits, even, force_real=True)[0]
     out = path_sums.path_transform(rows, domain, mus, groups, normaliser, digits,
                                    check_rows, tuple(gradient))
@@ -270,7 +272,7 @@ def _shifted(models, rows, domain, mus, digits, var, check_rows, gradient, certi
         tr.quad_err = cert_quad + tr.quad_err[check_rows:]
         tr.resolved = [a and b for a, b in zip(tr.resolved, cert_ok)]
         tr.method = "acb.integral-path"
-    return tr
+    return tr, None
 
 
 def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
@@ -310,13 +312,17 @@ def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
     check_rows = len(models) if check_rows is None else check_rows
     var, pmax = _model_profile(models[0].coef, domain)
     if path == "auto":
-        shifted = _shifted(models, rows, domain, mus, digits, var, check_rows, gradient,
-                           certify)
+        shifted, planned = _shifted(models, rows, domain, mus, digits, var, check_rows,
+                                    gradient, certify)
         if shifted is not None:
             return shifted
+    else:
+        planned = None
     half = 0.5 * (domain[1] - domain[0])
     degree = max(len(c) for c in rows) - 1
-    depths = [float(m) ** 2 * var / (2 * math.log(10)) for m in mus]
+    # the cancellation depth: from the path plan where one was made (it sees
+    # several peaks), else the Gaussian estimate from the variance
+    depths = planned or [float(m) ** 2 * var / (2 * math.log(10)) for m in mus]
     # starting node count from the Gauss-Legendre error bound on the
     # Bernstein ellipse (Trefethen, ATAP ch. 19) for exp(p) exp(i omega x)
     # with p near a Gaussian of width sigma_x in window units: the error
