@@ -38,14 +38,17 @@ def write_input(path, volume, n=401, reach=90.0):
 
 
 def run(cmd, env):
+    """(wall seconds, CPU seconds, peak resident MB of the largest child so
+    far, stdout) of one command."""
+    r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
     t0 = time.perf_counter()
-    before = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
     res = subprocess.run(cmd, capture_output=True, text=True, env=env)
     wall = time.perf_counter() - t0
-    peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+    r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
     if res.returncode:
         sys.exit(res.stderr)
-    return wall, max(peak, before) / 1024.0, res.stdout
+    cpu = r1.ru_utime + r1.ru_stime - r0.ru_utime - r0.ru_stime
+    return wall, cpu, r1.ru_maxrss / 1024.0, res.stdout
 
 
 def main():
@@ -65,13 +68,13 @@ def main():
             out = Path(tmp) / label.split(",")[0].replace(" ", "-")
             cmd = [sys.executable, "-m", "signfree", "run", str(src), "--mu",
                    f"0:{mu_max:.6f}:{a.points}", "--errors", "none", "--out", str(out), "--quiet"]
-            wall, mem, stdout = run(cmd, env)
+            wall, cpu, mem, stdout = run(cmd, env)
             rows = list(csv.DictReader(open(out / "results.csv")))
             depth = max(float(r["cancel_orders"]) for r in rows if r["status"] == "ok")
             counts = {s: sum(r["status"] == s for r in rows) for s in {r["status"] for r in rows}}
             line = next((ln for ln in stdout.splitlines() if ln.startswith("integration")), "")
             print(f"{label}: {a.points} mu points, V = {volume}, ok rows down to {depth:.0f} "
-                  f"cancelled orders: {wall:.2f} s wall, peak memory {mem:.0f} MB, "
+                  f"cancelled orders: {wall:.2f} s wall, {cpu:.2f} s CPU, peak memory {mem:.0f} MB, "
                   f"statuses {counts}")
             print(f"  {line}")
 

@@ -153,8 +153,16 @@ def quadrature_bound(coef, path, half, mus, counts):
     |exp(p(x) + i mu q)| dq/dx on the Bernstein ellipse E_rho of the panel,
     taken from 256 points of its boundary (where the maximum lies, by the
     maximum modulus principle), in double precision. The integrand is the
-    unshifted exp(p); for a half path the bound is for that half."""
-    mus = np.asarray(mus, dtype=complex)
+    unshifted exp(p); for a half path the bound is for that half (mu real)."""
+    mus = np.asarray(mus, dtype=float)
+    # ln M_rho(mu) is a maximum of functions affine in mu, hence convex: between
+    # two points of a grid of mu it lies below the chord, so the linear
+    # interpolation of its grid values bounds it at every mu
+    grid = np.unique(mus) if len(np.unique(mus)) <= 33 else \
+        np.linspace(mus.min(), mus.max(), 33)
+    if len(grid) > 1:
+        idx = np.clip(np.searchsorted(grid, mus, side="right") - 1, 0, len(grid) - 2)
+        t = (mus - grid[idx]) / (grid[idx + 1] - grid[idx])
     z = np.exp(1j * _BOUND_THETA)
     u = 0.5 * (_RHOS[:, None] * z[None, :] + 1.0 / (_RHOS[:, None] * z[None, :]))
     total = np.full(len(mus), -np.inf)
@@ -165,13 +173,17 @@ def quadrature_bound(coef, path, half, mus, counts):
         x = c + h * u
         with np.errstate(all="ignore"):
             re = C.chebval(x, coef).real                       # rho x theta
-            # max over theta of re p - mu half Im x, for every mu: rho x K
-            lm = np.max(re[:, :, None] - np.multiply.outer(half * x.imag, mus.real)
-                        - np.multiply.outer(half * x.real, mus.imag), axis=1)
+            lm = np.max(re[:, :, None] - np.multiply.outer(half * x.imag, grid), axis=1)
             b = lm + math.log(half) + math.log(abs(h)) + math.log(64 / 15) \
                 - np.log(_RHOS ** 2 - 1)[:, None] - 2 * n * np.log(_RHOS)[:, None]
-        b = np.where(np.isfinite(b), b, np.inf).min(axis=0)
-        total = np.logaddexp(total, b)
+        b = np.where(np.isfinite(b), b, np.inf)                # rho x grid
+        if len(grid) > 1:
+            with np.errstate(invalid="ignore"):
+                b = (1 - t) * b[:, idx] + t * b[:, idx + 1]    # rho x K
+            b = np.where(np.isnan(b), np.inf, b)
+        else:
+            b = np.repeat(b, len(mus), axis=1)
+        total = np.logaddexp(total, b.min(axis=0))
     return total
 
 

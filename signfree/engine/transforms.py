@@ -33,7 +33,6 @@ from flint import acb, acb_mat, arb, arb_mat, ctx
 from signfree.engine.balls import (MAX_NODES, MAX_PREC, abs_mid, arb_of as _arb, as_fractions,
                                    difference, exp_i as _exp_i, precision_bits,
                                    relative_radius as _relative_radius, uniform_step, upper)
-from signfree.engine.certification import certified as _certified
 from signfree.engine.rules import chebyshev_matrix, gauss_legendre, on_ladder as _on_ladder
 
 
@@ -266,6 +265,7 @@ def _shifted(models, rows, domain, mus, digits, var, check_rows, gradient, certi
                                    check_rows, tuple(gradient))
     tr = Transform(**out)
     if certify:
+        from signfree.engine.certification import certified as _certified
         cert, cert_quad, cert_ok = _certified(models[:check_rows], mus, digits, tr.values,
                                               tr.prec, groups=groups)
         tr.values = cert + tr.values[check_rows:]
@@ -414,6 +414,7 @@ def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
     prec = max(precs)
     grad = (grad_rows, grad0) if grad_ks else None
     if certify:
+        from signfree.engine.certification import certified as _certified
         cert, cert_quad, cert_ok = _certified(models[:check_rows], mus, digits, values, prec)
         values = cert + values[check_rows:]
         quad = cert_quad + quad[check_rows:]
