@@ -61,10 +61,17 @@ def chebyshev_table(xs, degree, prec):
     widen by up to sqrt 2 per product)."""
     n = len(xs)
     re = [[arb(1)] * n] + [[None] * n for _ in range(degree)]
-    im = [[arb(0)] * n] + [[None] * n for _ in range(degree)]
+    im = [[arb(0)] * n] + [[arb(0)] * n for _ in range(degree)]
     with ctx.workprec(prec + degree // 2 + 32):
         for j, x in enumerate(xs):
             w = x + (x - 1).sqrt() * (x + 1).sqrt()
+            if x.imag == 0:
+                # real x in [-1, 1]: |w| = 1 and T_k(x) = Re w^k exactly (imaginary part 0)
+                a = w
+                for k in range(1, degree + 1):
+                    re[k][j] = a.real
+                    a = a * w
+                continue
             wi = 1 / w
             a, b = w, wi
             for k in range(1, degree + 1):
@@ -83,15 +90,24 @@ def _powers(start, step, count):
 
 
 def _cmul(ar, ai, br, bi, real_only):
-    """(ar + i ai)(br + i bi) for arb_mat pairs; (re, None) when only the
-    real part is wanted."""
+    """(ar + i ai)(br + i bi) for arb_mat pairs (``ai`` None: a real left
+    factor); (re, None) when only the real part is wanted."""
+    if ai is None:
+        return ar * br, (None if real_only else ar * bi)
     re = ar * br - ai * bi
     return re, (None if real_only else ar * bi + ai * br)
 
 
-def fourier_sums(W, qs, mus, real_only):
+def _parts(rows, real):
+    """(real part, imaginary part or None) of a list of acb rows as arb_mat."""
+    return (arb_mat([[z.real for z in row] for row in rows]),
+            None if real else arb_mat([[z.imag for z in row] for row in rows]))
+
+
+def fourier_sums(W, qs, mus, real_only, real_weights=False):
     """sum_j W[r][j] exp(i mu_k q_j) for complex weights and nodes, as rows
-    of acb. On an even mu grid the exponentials factorise,
+    of acb (``real_weights``: W and q real, on the real axis). On an even
+    mu grid the exponentials factorise,
     exp(i mu_{aB+b} q) = exp(i (mu_0 + a B h) q) exp(i b h q)."""
     R, K, n = len(W), len(mus), len(qs)
     h = uniform_step(mus)
@@ -103,20 +119,14 @@ def fourier_sums(W, qs, mus, real_only):
         F = [_powers(acb(1), (arb_of(h) * z).exp(), B) for z in iq]
         if R * A < K:
             M = [[W[r][j] * G[j][i] for j in range(n)] for r in range(R) for i in range(A)]
-            re, im = _cmul(arb_mat([[z.real for z in row] for row in M]),
-                           arb_mat([[z.imag for z in row] for row in M]),
-                           arb_mat([[f.real for f in row] for row in F]),
-                           arb_mat([[f.imag for f in row] for row in F]), real_only)
+            re, im = _cmul(*_parts(M, False), *_parts(F, False), real_only)
             return [[acb(re[r * A + k // B, k % B],
                          0 if im is None else im[r * A + k // B, k % B]) for k in range(K)]
                     for r in range(R)]
         E = [[g * f for g in G[j] for f in F[j]][:K] for j in range(n)]
     else:
         E = [[(arb_of(m) * z).exp() for m in mus] for z in iq]
-    re, im = _cmul(arb_mat([[z.real for z in row] for row in W]),
-                   arb_mat([[z.imag for z in row] for row in W]),
-                   arb_mat([[e.real for e in row] for row in E]),
-                   arb_mat([[e.imag for e in row] for row in E]), real_only)
+    re, im = _cmul(*_parts(W, real_weights), *_parts(E, False), real_only)
     return [[acb(re[r, k], 0 if im is None else im[r, k]) for k in range(K)] for r in range(R)]
 
 
@@ -139,12 +149,16 @@ def path_sums(coef_rows, domain, path, mus, prec, scale, shifts, grad_ks=()):
         qs = [mid + half * x for x in xs]
         dq = [half * w for w in wx]
         W = []
+        real = path.height == 0          # real nodes, real weights
         for r in range(len(coef_rows)):
             s = arb(shifts[r])
-            W.append([dq[j] * acb(Pre[r, j] - s, Pim[r, j]).exp() for j in range(n)])
+            if real:
+                W.append([acb(dq[j].real * (Pre[r, j] - s).exp()) for j in range(n)])
+            else:
+                W.append([dq[j] * acb(Pre[r, j] - s, Pim[r, j]).exp() for j in range(n)])
         for k in grad_ks:
             W.append([W[0][j] * acb(Tre[k, j], Tim[k, j]) for j in range(n)])
-        Z = fourier_sums(W, qs, mus, path.half)
+        Z = fourier_sums(W, qs, mus, path.half, real_weights=real)
         if path.half:
             Z = [[2 * z for z in row] for row in Z]
     logw = np.array([_log10_abs(w) for w in W[0]])
