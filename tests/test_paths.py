@@ -303,3 +303,33 @@ def test_sparse_deep_mu_list_keeps_tight_error_bounds():
             exact = mpmath.exp(-mpmath.mpf(mu) ** 2 / 2)
             assert abs(value(tr, k) - exact) <= tr.quad_err[0][k] <= 1e-14 * exact
     assert all(tr.resolved) and tr.method == "gauss-legendre-path"
+
+
+def test_vertical_edges_carry_the_endpoint_terms():
+    # Cauchy's theorem through the engine's own sums: for the odd model ln rho = -3q +
+    # q^3/2 on [-2, 2] (peak at q = -sqrt 2, rho(-2) only e^-0.8 below it) Z at mu >= 7
+    # is carried by the endpoint terms; a rectangle of height 1 in q (vertical edges and a
+    # horizontal line) must give the real-axis value; python-flint's acb.integral on the
+    # real axis is the judge.
+    from signfree.engine import path_sums
+    from signfree.engine.paths import Panel, Path
+    L = 2.0
+    model = polynomial_model([0.0, -3.0, 0.0, 0.5], L)
+    rows = [list(model.coef)]
+    mus = [Fraction(7), Fraction(15, 2), Fraction(8)]
+    shifts = [0.0]
+    axis = Path(0.0, (Panel(-1 + 0j, 1 + 0j, 64),), False)
+    box = Path(0.5, (Panel(-1 + 0j, -1 + 0.5j, 48), Panel(-1 + 0.5j, 1 + 0.5j, 64),
+                     Panel(1 + 0.5j, 1 + 0j, 48)), False)
+    z_axis, _, _ = path_sums.path_sums(rows, model.domain, axis, mus, 192, 1.0, shifts)
+    z_box, _, _ = path_sums.path_sums(rows, model.domain, box, mus, 192, 1.0, shifts)
+    z0, _, _ = path_sums.path_sums(rows, model.domain, axis, [0], 192, 1.0, shifts)
+    with mpmath.workdps(50):
+        for k, mu in enumerate(mus):
+            ref = flint_rectangle(lambda q: arb(-3) * q + arb(0.5) * q ** 3, float(mu), L, 0.0, 192)
+            ref = mpmath.mpc(engine.to_mpf(ref.real), engine.to_mpf(ref.imag))
+            for z in (z_axis[0][k], z_box[0][k]):
+                with ctx.workprec(192):
+                    r = z / z0[0][0]
+                got = mpmath.mpc(engine.to_mpf(r.real), engine.to_mpf(r.imag))
+                assert abs(got - ref) <= 1e-25 * abs(ref)
