@@ -123,7 +123,6 @@ def test_asymmetric_model_saddle_off_the_imaginary_axis():
     mus = [Fraction(k, 2) for k in range(0, 41)]
     auto = engine.transform([model], mus, digits=15)
     real = engine.transform([model], mus, digits=15, path="real")
-    lnrho = lambda q: sum(a * q ** k for k, a in enumerate(ASYMMETRIC))
     dlnrho = lambda q: sum(k * a * q ** (k - 1) for k, a in enumerate(ASYMMETRIC) if k)
     with mpmath.workdps(60):
         for k in (20, 30, 40):

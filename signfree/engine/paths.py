@@ -278,7 +278,7 @@ def plan(coef, domain, mus, digits, even=False, force_real=False, common=False):
     half = 0.5 * (b - a)
     mus = np.asarray(mus)
     mus = mus.astype(complex if np.iscomplexobj(mus) else float)
-    sd, pmax = _bump_width(coef)
+    sd, _ = _bump_width(coef)
     # log |Z| of the Gaussian saddle estimate: the path's peak times the bump width
     width = math.log(math.sqrt(2 * math.pi) * sd)
     vmax = max(1.5 * float(np.abs(mus.real).max(initial=0.0)) * half * sd * sd, 1e-3)
