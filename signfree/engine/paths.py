@@ -282,12 +282,20 @@ def plan(coef, domain, mus, digits, even=False, force_real=False, common=False):
     # log |Z| of the Gaussian saddle estimate: the path's peak times the bump width
     width = math.log(math.sqrt(2 * math.pi) * sd)
     vmax = max(1.5 * float(np.abs(mus.real).max(initial=0.0)) * half * sd * sd, 1e-3)
-    for _ in range(4):
+    # the grid of heights: from the Gaussian estimate, widened while the best
+    # height sits at its top and narrowed while every best height lies in its
+    # lowest quarter (saddles of non-Gaussian densities move slower than mu var)
+    for _ in range(6):
         v, u, P, R = _largest(coef, mus, half, even, vmax, force_real)
-        best = R.argmin(axis=1)
-        if force_real or (best.min() > 0 and best.max() < 2 * LEVELS) or vmax > 8:
+        if force_real:
             break
-        vmax *= 2
+        top = float(np.abs(v[R.argmin(axis=1)]).max(initial=0.0))
+        if top >= vmax * (1 - 1.0 / LEVELS) and vmax < 8:
+            vmax *= 2
+        elif 0 < top < vmax / 4:
+            vmax = 1.5 * top
+        else:
+            break
     zero = LEVELS
     low = R.min(axis=1)
     log_z = low + width
