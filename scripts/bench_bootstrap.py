@@ -1,7 +1,8 @@
 """Benchmark at bootstrap scale: 200 bootstrap replicas x 400 mu x degree 40
 with up to 100 cancelled digits, every replica refitted and integrated in
-one batch (``signfree run --errors bootstrap --bootstrap 200``), wall time
-with process start.
+one batch (``signfree run --errors bootstrap --bootstrap 200``), wall and
+CPU time with process start, first with an empty rule cache, then with it
+filled.
 
     python scripts/bench_bootstrap.py [--replicas 200] [--points 400] [--depth 100]
 

@@ -1,7 +1,8 @@
 """Benchmark: a 400-point mu scan of a degree-40 Chebyshev model with up to
-100 cancelled digits through ``signfree run`` (wall time, process start
-included), beside the time per point of mpmath.quad on the same model and
-of a double-precision numpy sum (with its wrong answers).
+100 cancelled digits through ``signfree run`` (wall and CPU time, process
+start included; first with an empty rule cache, then with it filled),
+beside the time per point of mpmath.quad on the same model and of a
+double-precision numpy sum (with its wrong answers).
 
     python scripts/bench_scan.py [--points 400] [--depth 100]
 
