@@ -52,8 +52,10 @@ class Transform:
                dZ_0(mu)/dc_k / Z_0(0), list over k of dZ_0(0)/dc_k / Z_0(0))
     heights    per mu: Im q of the horizontal part of the path of integration
                (0: the real axis); None for routes without quadrature
-    path_orders  per mu: log10 of the largest |integrand| on that path over
-               |Z(mu)| (row 0, measured): the orders the sum cancels over
+    path_orders  per mu: log10 of the largest term of the quadrature sum over
+               |Z(mu)| (row 0, measured on a shifted path; on the real axis
+               the cancellation depth, an upper bound): the orders the sum
+               cancels over
     """
 
     values: list
@@ -422,6 +424,10 @@ def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
         method = "acb.integral"
     else:
         method = "gauss-legendre"
+    # on the real axis every term is at most Z(0): the sum cancels over at most the depth
+    orders = [float(-mpmath.log10(abs_mid(z))) if abs_mid(z) > 0 else math.inf
+              for z in values[0]]
     return Transform(values=values, quad_err=quad, log_z0=log_z0, resolved=resolved,
-                     prec=prec, nodes=n, method=method, mus=mus, gradient=grad)
+                     prec=prec, nodes=n, method=method, mus=mus, gradient=grad,
+                     heights=[0.0] * K, path_orders=orders)
 
