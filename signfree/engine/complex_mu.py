@@ -106,11 +106,16 @@ class Evaluator:
         # a box far from Re mu = 0 is integrated along one path through the
         # saddle region (signfree.engine.paths): there the sums do not cancel
         # over the depth; the node count n then scales the planned panels (n / 32)
-        self.path = self._path((re0, re1, im0, im1), depth, digits) if use_path else None
-        if self.path is not None:
-            path, ratio = self.path
-            self.path, depth = path, max(ratio, 0.0) / math.log(10)
-            self.n = 32
+        self.path = None
+        planned = self._path((re0, re1, im0, im1), depth, digits) if use_path else None
+        if planned is not None:
+            self.path, ratio = planned
+            depth = max(ratio, 0.0) / math.log(10)
+            if self.path is not None:
+                self.n = 32
+            else:   # the real axis, with the depth of the plan (it sees several peaks)
+                self.n = _ladder(int(16 + 0.35 * mu_max * self.half + 0.3 * math.sqrt(
+                    2.3 * (depth + digits + 5) / var) * self.half))
         self.prec = precision_bits(depth, 10, float(np.abs(p).max()), self.n)
         self.cache = {}
         self.eps = {}
@@ -119,18 +124,19 @@ class Evaluator:
         self.evaluations = 0
 
     def _path(self, box, depth, digits):
-        """(the common path for the box, its planned excess in nats), or
-        None where the real axis serves (shallow, or the box straddles
-        Re mu = 0, where the saddle changes side)."""
+        """(the common path for the box or None for the real axis, the
+        planned cancellation on it in nats), or None when the box is too
+        shallow to plan. A box that straddles Re mu = 0 (where the saddle
+        changes side) stays on the real axis."""
         from signfree.engine import paths
         re0, re1, im0, im1 = box
-        if depth * math.log(10) <= paths.ALLOWANCE or re0 * re1 <= 0:
+        if depth * math.log(10) <= paths.ALLOWANCE:
             return None
-        probes = [complex(r, i) for r in np.linspace(re0, re1, 5) for i in (im0, 0.5 * (im0 + im1), im1)]
-        group = paths.plan(self.coef, self.domain, probes, digits + 4, common=True)[0]
-        if group.path.height == 0:
-            return None
-        return group.path, max(group.log_ratio)
+        probes = [complex(r, i) for r in np.linspace(re0, re1, 5)
+                  for i in (im0, 0.5 * (im0 + im1), im1)]
+        group = paths.plan(self.coef, self.domain, probes, digits + 4, common=True,
+                           force_real=re0 * re1 <= 0)[0]
+        return (group.path if group.path.height != 0 else None), max(group.log_ratio)
 
     @property
     def n_used(self):

@@ -272,7 +272,8 @@ def plan(coef, domain, mus, digits, even=False, force_real=False, common=False):
     numbers) with their paths, planned for the model ``coef`` on ``domain``;
     ``common``: one group for all of them, on the height that keeps the
     largest excess smallest (the real axis when it is within the
-    allowance)."""
+    allowance); ``force_real``: the real axis only (with ``common``, its
+    cancellation is still estimated from the best heights)."""
     coef = np.asarray(coef, dtype=float)
     a, b = float(domain[0]), float(domain[1])
     half = 0.5 * (b - a)
@@ -286,8 +287,9 @@ def plan(coef, domain, mus, digits, even=False, force_real=False, common=False):
     # height sits at its top and narrowed while every best height lies in its
     # lowest quarter (saddles of non-Gaussian densities move slower than mu var)
     for _ in range(6):
-        v, u, P, R = _largest(coef, mus, half, even, vmax, force_real)
-        if force_real:
+        # force_real with common: the real axis, with |Z| still estimated from every height
+        v, u, P, R = _largest(coef, mus, half, even, vmax, force_real and not common)
+        if force_real and not common:
             break
         top = float(np.abs(v[R.argmin(axis=1)]).max(initial=0.0))
         if top >= vmax * (1 - 1.0 / LEVELS) and vmax < 8:
