@@ -357,3 +357,34 @@ def test_quartic_density_saddles_off_the_gaussian_estimate():
             assert abs(got - ref) <= tr.quad_err[0][k] + 1e-20 * abs(ref)
             assert abs(got - ref) <= 1e-12 * abs(ref)
         assert -mpmath.log10(abs(ref)) > 150
+
+
+def test_zeros_of_a_double_peaked_density_against_mpmath():
+    # ln rho = q^2 - q^4/100 on [-24, 24]: two peaks at +-7.07, Z(mu) ~ cos(7.07 mu)
+    # exp(-mu^2/8) with real zeros; the variance (~50) would suggest ~900 cancelled
+    # orders at mu = 9 where the real axis cancels over a few only. Judge of the zeros:
+    # mpmath.findroot on mpmath.quad of the same Chebyshev series.
+    from signfree.analysis.zeros import find_zeros
+    from signfree.engine.complex_mu import Evaluator
+    L = 24.0
+    model = polynomial_model([0, 0, 1.0, 0, -0.01], L)
+    box = (Fraction(8), Fraction(9), Fraction(-1, 5), Fraction(1, 5))
+    assert Evaluator(model, box, 12).prec < 400
+    res = find_zeros(model, box, digits=12)
+    zeros = res.zeros if hasattr(res, "zeros") else res
+    assert len(zeros) == 3
+    coef = [mpmath.mpf(float(c)) for c in model.coef]
+
+    def p(q):
+        x = q / L
+        b1 = b2 = 0
+        for c in reversed(coef[1:]):
+            b1, b2 = 2 * x * b1 - b2 + c, b1
+        return x * b1 - b2 + coef[0]
+    with mpmath.workdps(30):
+        z = zeros[1]
+        Z = lambda mu: mpmath.quad(lambda q: mpmath.exp(p(q) + 1j * mu * q),
+                                   mpmath.linspace(-L, L, 49))
+        ref = mpmath.findroot(Z, mpmath.mpc(z.re, z.im))
+        assert abs(mpmath.mpc(z.re, z.im) - ref) <= z.err + 1e-25
+        assert abs(ref.imag) < 1e-20 and 8 < ref.real < 9
