@@ -28,6 +28,7 @@ from functools import cached_property
 from fractions import Fraction
 
 import mpmath
+from mpmath.libmp import to_str
 
 STATUSES = ("ok", "edge_limited", "noise_limited", "misfit", "unresolved", "beyond_radius")
 EDGE_FRACTION = mpmath.mpf("0.1")
@@ -198,8 +199,12 @@ class Row:
 
 
 def _sci(x, nsig):
-    with mpmath.workdps(max(15, nsig + 5)):
-        s = mpmath.nstr(x, max(1, nsig), min_fixed=-4, max_fixed=6, strip_zeros=False)
+    if hasattr(x, "_mpf_"):
+        # what mpmath.nstr does for a real mpf, without entering a precision context
+        s = to_str(x._mpf_, max(1, nsig), min_fixed=-4, max_fixed=6, strip_zeros=False)
+    else:
+        with mpmath.workdps(max(15, nsig + 5)):
+            s = mpmath.nstr(x, max(1, nsig), min_fixed=-4, max_fixed=6, strip_zeros=False)
     return s.replace(".e", "e").replace("e+", "e").rstrip(".")
 
 

@@ -20,7 +20,13 @@ import importlib
 import os
 import sys
 
-from signfree.cli.options import EXIT_INTERRUPTED, Parser, fail
+# The least-squares problems of a run are small: a BLAS thread pool only spins
+# idle on them (and costs most on a busy machine). Set before numpy loads; a
+# user's own setting wins.
+for _name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_name, "1")
+
+from signfree.cli.options import EXIT_INTERRUPTED, Parser, fail  # noqa: E402  (after BLAS)
 
 # command -> (module, help text shown by ``signfree --help``)
 COMMANDS = {

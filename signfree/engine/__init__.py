@@ -25,7 +25,8 @@ from signfree.engine.balls import (GUARD_DIGITS, LOG2_10, MAX_NODES, MAX_PREC, a
 from signfree.engine.transforms import Transform
 
 
-def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=()):
+def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=(),
+              path="auto"):
     """Z(mu)/Z(0) for every model of a batch (rows) and every mu (columns),
     as a :class:`Transform` (values with their quadrature-plus-rounding
     bounds). All models of a batch share one integrand form and domain.
@@ -34,7 +35,10 @@ def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=(
     (the rest, such as replicas, ride along with the same rule);
     ``gradient``: coefficient indices whose derivatives dZ/dc_k are wanted
     (Chebyshev exponents only); ``certify``: rigorous acb.integral
-    enclosures where the route has a quadrature error at all."""
+    enclosures where the route has a quadrature error at all; ``path``:
+    'auto' (each mu along the path through the saddle with the smallest
+    cancellation, :mod:`signfree.engine.paths`) or 'real' (the real axis
+    only, the cross-check)."""
     forms = {getattr(m, "integrand", None) for m in models}
     if len(forms) != 1:
         raise ValueError(f"one batch holds one integrand form, got {sorted(map(str, forms))}")
@@ -42,7 +46,7 @@ def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=(
     if form == "chebyshev-exponent":
         from signfree.engine.transforms import chebyshev_transform
         return chebyshev_transform(models, mus, digits=digits, certify=certify,
-                                   check_rows=check_rows, gradient=gradient)
+                                   check_rows=check_rows, gradient=gradient, path=path)
     if form == "lattice-sum":
         from signfree.engine.sums import lattice_transform
         return lattice_transform(models, mus, digits=digits, check_rows=check_rows,
