@@ -78,6 +78,7 @@ def main():
     ap.add_argument("--only", default="")
     ap.add_argument("--seeds", type=int, default=2)
     ap.add_argument("--model", default="auto")
+    ap.add_argument("--degree", default=None, help="'per-mu' or an integer (default: chosen)")
     ap.add_argument("--twophase", action="store_true",
                     help="the two-phase scenarios instead of the general ones")
     a = ap.parse_args()
@@ -88,7 +89,8 @@ def main():
                 continue
             t0 = time.perf_counter()
             try:
-                res = analyse(density, mu, digits=10, model=a.model)
+                degree = a.degree if a.degree in (None, "per-mu") else int(a.degree)
+                res = analyse(density, mu, digits=10, model=a.model, degree=degree)
             except Exception as exc:  # an audit lists every failure and goes on
                 print(f"{name:24s} seed {seed}: FAILED {type(exc).__name__}: {exc}")
                 continue

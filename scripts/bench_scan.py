@@ -1,7 +1,8 @@
 """Benchmark: a 400-point mu scan of a degree-40 Chebyshev model with up to
-100 cancelled digits through ``signfree run`` (wall time, process start
-included), beside the time per point of mpmath.quad on the same model and
-of a double-precision numpy sum (with its wrong answers).
+100 cancelled digits through ``signfree run`` (wall and CPU time, process
+start included; first with an empty rule cache, then with it filled),
+beside the time per point of mpmath.quad on the same model and of a
+double-precision numpy sum (with its wrong answers).
 
     python scripts/bench_scan.py [--points 400] [--depth 100]
 
@@ -39,6 +40,14 @@ def write_input(path, half_range, n=241):
             f.write(f"{q!r},{lnrho(q)!r},1e-10\n")
 
 
+def _child_cpu():
+    """User plus system CPU seconds of the finished child processes (less
+    sensitive than wall time to other work on a shared machine)."""
+    import resource
+    r = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return r.ru_utime + r.ru_stime
+
+
 def main():
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--points", type=int, default=400)
@@ -52,21 +61,26 @@ def main():
     with tempfile.TemporaryDirectory() as tmp:
         src = Path(tmp) / "bench.csv"
         write_input(src, half_range)
-        out = Path(tmp) / "out"
-        cmd = [sys.executable, "-m", "signfree", "run", str(src), "--mu",
-               f"0:{mu_max:.6f}:{a.points}", "--degree", "40", "--errors", "none",
-               "--out", str(out), "--quiet"]
-        env = dict(os.environ, PYTHONPATH=str(ROOT))
-        t0 = time.perf_counter()
-        res = subprocess.run(cmd, capture_output=True, text=True, env=env)
-        wall = time.perf_counter() - t0
-        if res.returncode:
-            sys.exit(res.stderr)
-        rows = list(csv.DictReader(open(out / "results.csv")))
-    depth = max(float(r["cancel_orders"]) for r in rows)
-    statuses = {r["status"] for r in rows}
-    print(f"signfree run: {a.points} mu points, degree 40, up to {depth:.1f} cancelled "
-          f"digits: {wall:.2f} s wall (process start included), statuses {sorted(statuses)}")
+        # an empty rule cache for the first run, filled for the second
+        env = dict(os.environ, PYTHONPATH=str(ROOT), SIGNFREE_CACHE=str(Path(tmp) / "rules"))
+        for label in ("first run, empty rule cache", "second run"):
+            out = Path(tmp) / label.split(",")[0].replace(" ", "-")
+            cmd = [sys.executable, "-m", "signfree", "run", str(src), "--mu",
+                   f"0:{mu_max:.6f}:{a.points}", "--degree", "40", "--errors", "none",
+                   "--out", str(out), "--quiet"]
+            t0, c0 = time.perf_counter(), _child_cpu()
+            res = subprocess.run(cmd, capture_output=True, text=True, env=env)
+            wall, cpu = time.perf_counter() - t0, _child_cpu() - c0
+            if res.returncode:
+                sys.exit(res.stderr)
+            rows = list(csv.DictReader(open(out / "results.csv")))
+            depth = max(float(r["cancel_orders"]) for r in rows)
+            statuses = {r["status"] for r in rows}
+            line = next((ln for ln in res.stdout.splitlines() if ln.startswith("integration")), "")
+            print(f"signfree run ({label}): {a.points} mu points, degree 40, up to {depth:.1f} "
+                  f"cancelled digits: {wall:.2f} s wall, {cpu:.2f} s CPU (process start included), "
+                  f"statuses {sorted(statuses)}")
+            print(f"  {line}")
 
     # the same model, integrated point by point with mpmath.quad
     import mpmath

@@ -57,6 +57,10 @@ LOG_DENSITY_OFFSET_SD = 10.0
 
 HISTOGRAM_SAMPLES = 2_000_000
 
+SEED_IMAGINARY = 6304
+IMAGINARY_NU = [k / 10 for k in range(11)]              # 0.0 ... 1.0
+IMAGINARY_SAMPLES = 20_000
+
 EXACT_MU = [f"{k / 20:.2f}" for k in range(61)]         # 0.00 ... 3.00
 EXACT_DIGITS = 20
 FIRST_SIGN_CHANGE = mpmath.nstr(
@@ -69,6 +73,7 @@ def header(kind, seed):
         lines.append(f"# kind: {kind}")
     lines += [f"# volume: {VOLUME}",
               "# symmetry: even",
+              "# charge: continuous",
               f"# scenario: {SCENARIO}"]
     made = MADE_BY if seed is None else f"{MADE_BY} (seed {seed})"
     lines.append(f"# made by: {made}")
@@ -140,6 +145,26 @@ def make_histogram():
     write("rotors_histogram.csv", lines)
 
 
+def make_imaginary():
+    """A direct simulation at imaginary mu = i nu, where there is no sign
+    problem: each rotor angle then has the weight exp(b cos t - nu sin t) =
+    exp(kappa cos(t + phi)), kappa = sqrt(b^2 + nu^2), phi = atan2(nu, b), a
+    von Mises distribution sampled exactly. Written: the sample mean of
+    q / V and its standard error (independent samples)."""
+    rng = np.random.default_rng(SEED_IMAGINARY)
+    lines = ["# quantity: n = <q>/V at imaginary mu = i nu (direct simulation)",
+             f"# volume: {VOLUME}",
+             f"# scenario: {SCENARIO}",
+             f"# made by: {MADE_BY} (seed {SEED_IMAGINARY})",
+             "nu,value,error"]
+    for nu in IMAGINARY_NU:
+        kappa, phi = np.hypot(B, nu), np.arctan2(nu, B)
+        theta = rng.vonmises(-phi, kappa, size=(IMAGINARY_SAMPLES, VOLUME))
+        n = np.sin(theta).sum(axis=1) / VOLUME
+        lines.append(f"{nu:.1f},{n.mean():.6f},{n.std(ddof=1) / np.sqrt(len(n)):.6f}")
+    write("rotors_imaginary.csv", lines)
+
+
 def make_exact():
     """Exact phase factor Z(mu)/Z(0) as decimal strings."""
     lines = ["# quantity: exact phase factor Z(mu)/Z(0)",
@@ -179,6 +204,10 @@ computes it ({DPS} significant digits) from the inverse Laplace integral of
 the moment generating function (I0(sqrt(b^2 + s^2)) / I0(b))^{VOLUME} along
 the vertical line through the real saddle point.
 
+The charge takes every real value, but the tables sit on an integer grid: the
+files say so with `# charge: continuous`, so that Z stays the integral and
+not the sum over the grid points.
+
 ## Files
 
 - rotors_slopes.csv: estimates of d ln rho/dq on unit intervals centred at
@@ -196,6 +225,12 @@ the vertical line through the real saddle point.
   (zero counts where nothing fell) (seed {SEED_HISTOGRAM}).
 - rotors_exact.csv: the exact phase factor for mu = 0, 0.05, ..., 3.00, to
   {EXACT_DIGITS} significant digits.
+- rotors_imaginary.csv: a direct simulation at imaginary mu = i nu, nu = 0,
+  0.1, ..., 1.0, where the weight exp(b cos theta - nu sin theta) is positive
+  (a von Mises distribution of the angle, sampled exactly):
+  n = <q>/V from {IMAGINARY_SAMPLES:,} samples per nu with its standard error
+  (seed {SEED_IMAGINARY}); the exact value is -nu I1(r) / (r I0(r)),
+  r = sqrt(b^2 + nu^2).
 
 All random numbers come from numpy.random.default_rng with the seeds above.
 Regenerate with `python scripts/make_demo_data.py`; the output is reproduced
@@ -210,6 +245,7 @@ def main():
     make_slopes()
     make_log_density()
     make_histogram()
+    make_imaginary()
     with open(OUT / "README.md", "w", encoding="utf-8", newline="\n") as fh:
         fh.write(README)
     print(f"wrote {(OUT / 'README.md').relative_to(ROOT)}")

@@ -25,6 +25,10 @@ _API = {
     "fit_two_component": "signfree.models.twophase",
     "TwoComponentModel": "signfree.models.twophase",
     "CumulantModel": "signfree.models.cumulant",
+    "Lattice": "signfree.models.lattice",
+    "LatticeModel": "signfree.models.lattice",
+    "resolve_lattice": "signfree.analysis.lattice",
+    "lattice_zeros": "signfree.analysis.fugacity",
     "sample_cumulants": "signfree.models.cumulant",
     "model_cumulants": "signfree.engine.moments",
     "transform": "signfree.engine",
@@ -39,6 +43,13 @@ _API = {
     "compare": "signfree.analysis.compare",
     "make_figures": "signfree.report.figures",
     "html_report": "signfree.report.page",
+    "ComplexMu": "signfree.analysis.mu_spec",
+    "parse_observables": "signfree.analysis.weights",
+    "read_imaginary_reference": "signfree.io.references",
+    "extrapolate": "signfree.analysis.volumes",
+    "free_energy_points": "signfree.analysis.volumes",
+    "run_sweep": "signfree.report.sweep",
+    "read_manifest": "signfree.report.manifest",
 }
 
 __all__ = sorted(_API)

@@ -20,3 +20,9 @@ class InputError(ValueError):
             if self.column is not None:
                 where += f":{self.column}"
         return f"{where}: {self.message}"
+
+
+class OutputError(InputError):
+    """An output folder or file that cannot be written as asked (it exists
+    and is not empty, it is a file, it cannot be created): the same one line
+    and exit status 2 as bad input."""

@@ -1,7 +1,7 @@
 """The package layout: imports flow one way, from the command line down to
 the data, and no module imports itself back through others.
 
-    cli -> report -> analysis -> engine -> models -> io -> density -> errors
+    cli -> report -> analysis -> engine -> models -> io -> density -> errors, progress
 
 A module may import modules of its own stage or of any lower stage, never
 of a higher one, and the import graph (every import statement, also those
@@ -15,9 +15,9 @@ from pathlib import Path
 import pytest
 
 PACKAGE = Path(__file__).resolve().parent.parent / "signfree"
-STAGES = ["errors", "density", "scenarios", "io", "models", "engine", "analysis", "report",
+STAGES = ["errors", "progress", "density", "scenarios", "io", "models", "engine", "analysis", "report",
           "cli"]
-RANK = {"errors": 0, "density": 1, "scenarios": 1, "io": 2, "models": 3, "engine": 4,
+RANK = {"errors": 0, "progress": 0, "density": 1, "scenarios": 1, "io": 2, "models": 3, "engine": 4,
         "analysis": 5, "report": 6, "cli": 7}
 MAX_LINES = 550
 

@@ -231,10 +231,14 @@ def test_bootstrap_seed_is_recorded_and_reproduces_the_errors():
 
 
 def naive(rel, mag):
-    """log10 N = -2 log10 r - 2 log10 |Z|: the mean of the phase factor over N
-    phase-quenched samples has a standard error of about 1/sqrt(N), so a
-    relative error r at |Z/Z0| needs N = 1 / (r |Z|)^2 (common practice)."""
-    return -2 * math.log10(rel) - 2 * math.log10(mag)
+    """log10 N: the phase e^{i mu q} has variance E|X|^2 - |EX|^2 = 1 - |Z|^2
+    over the phase-quenched ensemble (the definition of the variance), so
+    the mean of N samples has standard error sqrt((1 - |Z|^2) / N) and a
+    relative error r at |Z/Z0| needs N = (1 - |Z|^2) / (r |Z|)^2 (common
+    practice), at least one sample."""
+    if mag >= 1:
+        return 0.0
+    return max(0.0, math.log10(1 - mag * mag) - 2 * math.log10(rel) - 2 * math.log10(mag))
 
 
 def test_naive_samples_from_the_rows_own_errors():
@@ -251,12 +255,22 @@ def test_naive_samples_from_the_rows_own_errors():
 
 
 def test_naive_samples_of_a_row_built_by_hand():
-    # r = 1e-2 at |Z/Z0| = 1e-3: N = 1 / (1e-2 * 1e-3)^2 = 1e10.
+    # r = 1e-2 at |Z/Z0| = 1e-3: N = (1 - 1e-6) / (1e-2 * 1e-3)^2 = 1e10 (1 - 1e-6).
     row = Row(mu=Fraction(1), value=mpmath.mpc("1e-3"), quad_err=mpmath.mpf(0),
               edge_err=mpmath.mpf(0), model_err=mpmath.mpf(0), stat_err=mpmath.mpf("1e-5"))
-    assert row.naive_log10_samples == pytest.approx(10.0, abs=1e-12)
-    table = ResultTable(rows=[row], model_label="chebyshev:2")
-    assert table.records()[0]["naive_samples"] == "1e10"
+    assert row.naive_log10_samples == pytest.approx(10.0 + math.log10(1 - 1e-6), abs=1e-12)
+    # |Z/Z0| = 0.6 with error 0.008: N = (1 - 0.36) / 0.008^2 = 1e4 exactly
+    mid = Row(mu=Fraction(1, 2), value=mpmath.mpc("0.6"), quad_err=mpmath.mpf(0),
+              edge_err=mpmath.mpf(0), model_err=mpmath.mpf(0), stat_err=mpmath.mpf("0.008"))
+    assert mid.naive_log10_samples == pytest.approx(4.0, abs=1e-12)
+    # at mu = 0 every sample has phase 1: one sample gives Z(0)/Z(0) = 1 exactly
+    zero = Row(mu=Fraction(0), value=mpmath.mpc(1), quad_err=mpmath.mpf("1e-30"),
+               edge_err=mpmath.mpf("1e-23"), model_err=mpmath.mpf(0), stat_err=mpmath.mpf(0))
+    assert zero.naive_log10_samples == 0.0
+    table = ResultTable(rows=[row, mid, zero], model_label="chebyshev:2")
+    assert [r["naive_samples"] for r in table.records()] == ["1e10", "1e4", "1"]
+    # the statistical error at mu = 0 is exactly zero, whatever the data
+    assert table.records()[2]["avg_phase_err"] == "0"
 
 
 def test_degree_per_mu_takes_the_smallest_combined_error():

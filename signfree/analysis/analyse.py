@@ -14,9 +14,10 @@ import time
 import mpmath
 import numpy as np
 
-from signfree import engine
-from signfree.analysis import budget, model_choice, uncertainty
+from signfree import engine, progress
+from signfree.analysis import budget, model_choice, observables, uncertainty
 from signfree.analysis.cumulant import analyse_cumulant
+from signfree.analysis.lattice import analyse_lattice, resolve_lattice
 from signfree.analysis.results import Analysis, ResultTable, Row, density_rises_at_edge
 from signfree.analysis.settings import MODELS, check_digits, parse_mu_spec, settings_of
 from signfree.models.chebyshev import fit_chebyshev
@@ -43,21 +44,37 @@ def analyse(density, mus, settings=None, samples=None, **changes):
     error. ``model='cumulant'`` sums the cumulant expansion to ``order``
     (cumulants from ``samples``, raw :class:`signfree.io.samples.Samples`,
     when given; else from a histogram's counts; else from the smoothed
-    density)."""
+    density). ``observables`` (e.g. 'n,chi,q^2') adds those at every mu
+    (``Analysis.observables``); mu off the real axis and an
+    ``imaginary_reference`` are handled there too."""
     s = settings_of(settings, **changes)
+    mus, off_axis = observables.split_mus(mus)
+    if s.model == "auto" and observables.wanted(s, off_axis):
+        s = s.with_(model="chebyshev")      # observables rest on the Chebyshev model
     if s.model == "cumulant":
         reference = _analyse_fixed(density, mus, s.with_(model="chebyshev",
                                                          degree=None if s.degree == "per-mu"
                                                          else s.degree))
-        return analyse_cumulant(density, mus, s, samples, reference)
-    if s.degree == "per-mu":
-        return _analyse_per_mu(density, mus, s)
-    return _analyse_fixed(density, mus, s)
+        result = analyse_cumulant(density, mus, s, samples, reference)
+    else:
+        # charges on a lattice: the periodic sum (signfree.analysis.lattice)
+        charge, notes = resolve_lattice(density, s, samples)
+        if charge is not None:
+            return analyse_lattice(charge, mus, s, samples, notes)
+        if s.degree == "per-mu":
+            result = _analyse_per_mu(density, mus, s)
+        else:
+            result = _analyse_fixed(density, mus, s)
+        result.table.info["notes"].extend(notes)
+    if observables.wanted(s, off_axis):
+        observables.attach_observables(result, off_axis, s)
+    return result
 
 
 def _analyse_fixed(density, mus, s):
     """One smoothing model (asked for or chosen) at one order (given or chosen)."""
     start = time.perf_counter()
+    progress.report(f"fitting the {s.model} model")
     central, neighbours, fit, choice = model_choice.smoothing(density, s.model, s.degree,
                                                               s.parity)
     method = uncertainty.choose_method(density, s.errors, central.label)
@@ -78,6 +95,7 @@ def _analyse_fixed(density, mus, s):
     if method in ("jackknife", "bootstrap"):
         if method == "bootstrap" and seed is None:
             seed = int(np.random.SeedSequence().entropy % (1 << 32))
+        progress.report(f"refitting the {method} resamples")
         values = uncertainty.resampled_values(density, method, s.bootstrap_samples, seed,
                                               fit.sigma if fit is not None else None)
         resamples = uncertainty.resampled_models(density, central, values, correction)
@@ -180,8 +198,9 @@ def _analyse_fixed(density, mus, s):
     else:
         info["model_err_against"] = "piecewise through every other knot"
     if method == "none":
-        info["notes"].append("no replicas and no per-point errors: no statistical error "
-                             "(avg_phase_err is empty), so the horizon rests on the other errors")
+        why = ("--errors none" if s.errors == "none" else "no replicas and no per-point errors")
+        info["notes"].append(f"{why}: no statistical error (avg_phase_err is empty), so the "
+                             "horizon rests on the other errors")
     if density_rises_at_edge(central):
         info["notes"].append("ln rho does not fall towards an end of the data range: the range "
                              "cuts off part of the density and edge_err is large")
@@ -190,7 +209,8 @@ def _analyse_fixed(density, mus, s):
     table = ResultTable(rows=rows, model_label=central.label, volume=volume, info=info)
     info["horizon"] = table.horizon()
     return Analysis(density=density, model=central, fit=fit, transform=tr, table=table,
-                    seconds=time.perf_counter() - start)
+                    seconds=time.perf_counter() - start,
+                    replica_rows=(method, len(batch), n_res) if resamples else None)
 
 
 def _structure(density, model, fit, values, mus):
@@ -200,7 +220,7 @@ def _structure(density, model, fit, values, mus):
     if sigma is None:
         return [None] * len(mus)
     res, keep = budget.residuals(density, model, fit.correction if fit is not None else None,
-                                 sigma if fit is not None else None)
+                                 sigma)
     if fit is None:
         res = np.zeros_like(res)   # the piecewise model passes through its data
     if density.kind == "histogram" and fit is None:
@@ -245,6 +265,7 @@ def _analyse_per_mu(density, mus, s):
     degrees = candidate_degrees(density.kind, n_fit, fit.model.parity)
     i = degrees.index(fit.model.degree)
     window = degrees[max(0, i - 2): i + 5]
+    progress.report("per-mu degree: trying degrees", detail=", ".join(map(str, window)))
     runs = {d: _analyse_fixed(density, mus, s.with_(model="chebyshev", degree=d,
                                                     parity=fit.model.parity))
             for d in window}

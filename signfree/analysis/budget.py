@@ -18,7 +18,9 @@ R(mu) = Z(mu)/Z(0) by
 of the size the noise allows at w near mu changes R by about eps/2,
 whatever the depth of R. The bound taken over the modes w_j = 2 pi j / L of
 the range L (from the lowest up to mu_max plus the width of F, and no
-higher than the data resolve, 0.9 pi / spacing) is
+higher than the data resolve, 0.9 pi / spacing; for a density symmetric
+about 0 only the even ripple eps cos(w q), whose side bands add with one
+phase) is
     STRUCTURE_SIGMAS sqrt( sum_j (m_j^2 + 1) A_j^2 G_j(mu)^2 ),
 G_j(mu) = (|F(mu - w_j)| + |F(mu + w_j)|) / 2 + |R(mu)| |F(w_j)|, the modes
 taken as independent (a linear propagation like that of a fit covariance).
@@ -70,9 +72,10 @@ def responses(density, omegas, keep=None):
     return r
 
 
-def mode_amplitudes(density, omegas, sigma, residuals, keep=None):
+def mode_amplitudes(density, omegas, sigma, residuals, keep=None, even=False):
     """(A, m): per mode the amplitude uncertainty in its least constrained
-    phase, and the component the residuals show in units of it."""
+    phase, and the component the residuals show in units of it. ``even``:
+    only the even ripple eps cos(w q) (a density symmetric about q = 0)."""
     A = np.empty(len(omegas))
     m = np.empty(len(omegas))
     wgt = 1.0 / np.asarray(sigma, dtype=float) ** 2
@@ -95,6 +98,11 @@ def mode_amplitudes(density, omegas, sigma, residuals, keep=None):
             alpha = (n22 * g1 - n12 * g2) / det
             beta = (n11 * g2 - n12 * g1) / det
             chi = (alpha * g1 + beta * g2) / 2
+            if even:
+                A[start:start + len(part)] = np.minimum(
+                    np.where(n11 > 0, 1 / np.sqrt(np.maximum(n11, 1e-300)), np.inf),
+                    AMPLITUDE_CAP)
+                chi = g1 * g1 / n11
         m[start:start + len(part)] = np.sqrt(np.clip(np.nan_to_num(chi), 0, None))
     return A, m
 
@@ -174,7 +182,7 @@ def ripple_modes(density, model, sigma, residuals, mu_top, keep=None):
     omegas = step * np.arange(1, int(np.ceil(min(top, limit) / step)) + 1)
     if omegas.size == 0:
         return omegas, omegas, None
-    A, m = mode_amplitudes(density, omegas, sigma, residuals, keep)
+    A, m = mode_amplitudes(density, omegas, sigma, residuals, keep, even=is_even(model))
 
     def F(x):
         """F at real x (F(-x) = conj F(x) for a real density)."""
@@ -184,6 +192,19 @@ def ripple_modes(density, model, sigma, residuals, mu_top, keep=None):
         return np.where(x < 0, np.conj(g), g)
 
     return omegas, (m * m + 1) * A * A, F
+
+
+def is_even(model):
+    """The model is even in q about 0 (a stated or detected symmetry): its
+    ripples are then even too."""
+    a, b = model.domain
+    return getattr(model, "parity", "none") == "even" and abs(a + b) <= 1e-9 * (b - a)
+
+
+def pair(plus, minus, even):
+    """|plus| + |minus| for a ripple of either phase, |plus + minus| for the
+    even ripple eps cos(w q), whose two side bands come with one phase."""
+    return np.abs(plus + minus) if even else np.abs(plus) + np.abs(minus)
 
 
 def combine(weights, G, sigmas=STRUCTURE_SIGMAS):
@@ -208,7 +229,7 @@ def structure_errors(density, model, sigma, residuals, values, mus, keep=None):
             continue
         mag = abs(z)
         r = complex(z / mag) * float(mag) if mag > mpmath.mpf("1e-300") else 0j
-        G = np.abs(F(mu[k] + omegas) - r * Fw) + np.abs(F(mu[k] - omegas) - r * Fmw)
+        G = pair(F(mu[k] + omegas) - r * Fw, F(mu[k] - omegas) - r * Fmw, is_even(model))
         out.append(combine(weights, G))
     return out
 
@@ -308,3 +329,64 @@ def piecewise_floor(model, log_z0, values, mus):
         cusp = sum((r * float(j / d) for r, j, d in zip(rho, jump, den)), mpmath.mpf(0))
         out.append(min(cusp, interp * (1 + abs(z))))
     return out
+
+
+# ------------------------------------------------------------ ratios
+
+def weighted_transform(model, weight, top):
+    """(nu, N(nu) exp(-i nu c)): Int O(q) rho e^{i nu q} / Int rho for the
+    polynomial weight O (a function of q), as :func:`model_transform` does
+    for O = 1, with the same centring c."""
+    a, b = model.domain
+    L = b - a
+    h = min(L / 256, np.pi / (2 * max(top, 1e-12)))
+    n = int(np.ceil(L / h)) + 1
+    q = np.linspace(a, b, n)
+    p = np.asarray(model.log_density(q), dtype=float)
+    f = np.exp(p - p.max())
+    f[0] *= 0.5
+    f[-1] *= 0.5
+    c = float((f * q).sum() / f.sum())
+    pad = 1 << int(np.ceil(np.log2(16 * n)))
+    spec = np.fft.ifft(f * weight(q), pad) * pad
+    nu = 2 * np.pi * np.arange(pad) / (pad * (q[1] - q[0]))
+    keep = nu <= top * 1.01 + 1e-12
+    nu = nu[keep]
+    return nu, spec[keep] * np.exp(1j * nu * (a - c)) / f.sum(), c
+
+
+def ratio_structure(density, model, sigma, residuals, keep, weight, ratios, values, mus):
+    """(bounds, ratios): per mu, the structure bound of a ratio
+    <O>_mu = N_O(mu) / Z(mu): a ripple eps cos(w q + phi) changes it by
+    (eps/2) [N(mu +- w) - <O> F(mu +- w)] / R(mu) (the normalisation Z(0)
+    cancels in the ratio), bounded over the modes as for Z (module
+    docstring). ``values`` are R(mu); ``ratios`` <O>_mu, or None to take
+    them in double precision from the same transforms (good where R is well
+    above the rounding of doubles, which is where a bound matters)."""
+    mu = np.array([float(m) for m in mus])
+    omegas, weights, F = ripple_modes(density, model, sigma, residuals, np.abs(mu).max(), keep)
+    if F is None:
+        return [mpmath.mpf(0)] * len(mus)
+    a, b = model.domain
+    nu, G, c = weighted_transform(model, weight, np.abs(mu).max() + omegas[-1] + 1e-9)
+
+    def N(x):
+        ax = np.abs(x)
+        g = np.interp(ax, nu, G.real, right=0.0) + 1j * np.interp(ax, nu, G.imag, right=0.0)
+        g = g * np.exp(1j * ax * c)
+        return np.where(x < 0, np.conj(g), g)
+
+    out, means = [], []
+    for k in range(len(mus)):
+        R = values[k]
+        f0 = complex(F(np.array([mu[k]]))[0])
+        o = complex(ratios[k]) if ratios is not None else (
+            complex(N(np.array([mu[k]]))[0]) / f0 if f0 != 0 else 0j)
+        means.append(o)
+        if abs(R) == 0:
+            out.append(mpmath.inf)
+            continue
+        G1 = pair(N(mu[k] + omegas) - o * F(mu[k] + omegas),
+                  N(mu[k] - omegas) - o * F(mu[k] - omegas), is_even(model))
+        out.append(combine(weights, G1) / abs(R))
+    return out, means

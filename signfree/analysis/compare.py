@@ -22,6 +22,8 @@ from dataclasses import dataclass, field
 
 import mpmath
 
+from signfree import progress
+
 from signfree.analysis.analyse import analyse
 from signfree.analysis.cumulant import convergence_radius, cumulant_rows, cumulant_source
 from signfree.analysis.results import error_string, format_mu
@@ -61,7 +63,7 @@ class Comparison:
                     "avg_phase_imag": r.avg_phase_imag,
                     "avg_phase_err": error_string(r.stat_err),
                     "total_err": error_string(r.total_err),
-                    "cancel_orders": f"{r.cancel_orders:.2f}",
+                    "cancel_orders": "" if r.cancel_orders is None else f"{r.cancel_orders:.2f}",
                     "model_err": error_string(r.model_err),
                     "status": r.status,
                 })
@@ -163,9 +165,19 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
     routes = {}
     notes = sample_notes + list(fit.notes)
     chosen_rows = None
+    # the routes compared here are integrals; a lattice charge is summed by
+    # signfree run (signfree.analysis.lattice), and the note says so
+    from signfree.analysis.lattice import resolve_lattice
+    from signfree.analysis.settings import Settings
+    lattice, _ = resolve_lattice(density, Settings(), data if isinstance(data, Samples) else None)
+    if lattice is not None:
+        notes.append("the charge lies on a lattice: these routes are integrals, which miss the "
+                     "aliased terms of its periodic sum near mu = pi/step; signfree run sums "
+                     "over the lattice")
     for degree in [chosen.degree] + _neighbour_degrees(density, chosen):
+        progress.report(f"route chebyshev:{degree}")
         result = analyse(density, mus, model="chebyshev", degree=degree, digits=digits,
-                         parity=chosen.parity)
+                         parity=chosen.parity, step="continuous")
         routes[result.model.label] = result.table.rows
         if degree == chosen.degree:
             chosen_rows = result.table.rows
@@ -174,6 +186,7 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
     kappa, kappa_err, source = cumulant_source(data, density, fit, top + 2)
     lower = None
     if radius == "auto":
+        progress.report("radius of convergence: zeros of Z near the scan")
         radius, lower, zero_notes = convergence_radius(fit, density, mus)
         notes.extend(zero_notes)
     for K in range(2, top + 1, 2):
@@ -182,7 +195,8 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
                            parity=chosen.parity)
         routes[cm.label] = cumulant_rows(cm, mus, reference=chosen_rows, radius=radius,
                                          digits=digits)
-    auto = analyse(density, mus, digits=digits)       # the model --model auto takes
+    progress.report("route auto")
+    auto = analyse(density, mus, digits=digits, step="continuous")   # what --model auto takes
     for name in ("rational", "two-component"):
         # the models for two-phase data (analysis.model_choice), each at its
         # own automatic order; the reference when --model auto takes one
@@ -190,13 +204,15 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
             routes[auto.model.label] = auto.table.rows
             reference = auto.model.label
             continue
+        progress.report(f"route {name}")
         try:
-            alt = analyse(density, mus, model=name, digits=digits)
+            alt = analyse(density, mus, model=name, digits=digits, step="continuous")
         except ValueError as exc:
             notes.append(str(exc))
             continue
         routes[alt.model.label] = alt.table.rows
-    pw = analyse(density, mus, model="piecewise", digits=digits)
+    progress.report("route piecewise")
+    pw = analyse(density, mus, model="piecewise", digits=digits, step="continuous")
     routes["piecewise"] = pw.table.rows
     info = {"cumulants_from": source, "notes": notes,
             "kappa": [mpmath.nstr(k, 15) for k in kappa],

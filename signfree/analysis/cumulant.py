@@ -9,7 +9,7 @@ from dataclasses import dataclass
 import mpmath
 import numpy as np
 
-from signfree import engine
+from signfree import engine, progress
 from signfree.analysis.results import Analysis, ResultTable, Row
 from signfree.analysis.zero_errors import assess, perturbed_models
 from signfree.analysis.zeros import ContourError, count_zeros, find_zeros
@@ -169,6 +169,7 @@ def analyse_cumulant(density, mus, s, samples=None, reference=None):
                                                density, fit, order + 2)
     cm = CumulantModel(kappa=tuple(kappa), order=order, parity=fit.model.parity,
                        kappa_err=None if kappa_err is None else tuple(kappa_err))
+    progress.report("radius of convergence: zeros of Z near the scan")
     radius, lower, notes = convergence_radius(fit, density, mus)
     rows = cumulant_rows(cm, mus, reference=None if reference is None else reference.table.rows,
                          next_model=None if reference is not None else cm.next_order_model(),

@@ -28,6 +28,7 @@ from functools import cached_property
 from fractions import Fraction
 
 import mpmath
+from mpmath.libmp import to_str
 
 STATUSES = ("ok", "edge_limited", "noise_limited", "misfit", "unresolved", "beyond_radius")
 EDGE_FRACTION = mpmath.mpf("0.1")
@@ -114,13 +115,15 @@ class Row:
             last = max(last, int(mpmath.floor(mpmath.log10(err))))
         return last
 
-    def part(self, x):
+    def part(self, x, guard=0):
         """A real or imaginary part as a decimal string with only the
-        supported digits: '' when nothing is supported, '0' when the part
-        lies below the last supported digit."""
+        supported digits (and ``guard`` digits more, for values that feed
+        further fits): '' when nothing is supported, '0' when the part lies
+        below the last digit shown."""
         last = self.last_digit
         if last is None:
             return ""
+        last -= guard
         if x == 0:
             return "0"
         nsig = int(mpmath.floor(mpmath.log10(abs(x)))) - last + 1
@@ -137,22 +140,38 @@ class Row:
     @property
     def cancel_orders(self):
         """-log10 |Z(mu)/Z(0)|; for a row without one supported digit the
-        supported lower bound -log10(|value| + total error)."""
+        supported lower bound -log10(|value| + total error); None when even
+        that bound is not known (an infinite error)."""
         mag = self.magnitude
         if self.last_digit is None:
-            return float(-mpmath.log10(mag + self.total_err))
+            bound = mag + self.total_err
+            return float(-mpmath.log10(bound)) if mpmath.isfinite(bound) and bound > 0 else None
         return float(-mpmath.log10(mag))
 
     @cached_property
     def naive_log10_samples(self):
         """log10 of the number of phase-quenched samples that direct
-        reweighting would need for the same relative error r: the phase
-        factor's sample mean has relative error about 1 / (sqrt(N) |Z/Z0|),
-        so N = 1 / (r^2 |Z/Z0|^2) (common practice). None without support."""
+        reweighting would need for the same error: the phase e^{i mu q} has
+        variance 1 - |Z/Z0|^2 over the phase-quenched ensemble, so the mean
+        of N independent samples has error sqrt((1 - |Z/Z0|^2) / N), and
+        N = (1 - |Z/Z0|^2) / err^2 = (1 - |Z/Z0|^2) / (r^2 |Z/Z0|^2) for the
+        relative error r (common practice). At least one sample (0); None
+        without support."""
         mag, err = self.magnitude, self.total_err
         if self.last_digit is None or err == 0:
             return None
-        return float(-2 * mpmath.log10(err / mag) - 2 * mpmath.log10(mag))
+        spread = 1 - mag ** 2
+        if spread <= 0:
+            return 0.0
+        return max(0.0, float(mpmath.log10(spread) - 2 * mpmath.log10(err)))
+
+    @property
+    def stat_err_text(self):
+        """The statistical error as printed: '0' at mu = 0, where
+        Z(0)/Z(0) = 1 holds exactly whatever the data."""
+        if self.stat_err is not None and self.mu == 0:
+            return "0"
+        return error_string(self.stat_err)
 
     @cached_property
     def dominant_error(self):
@@ -164,33 +183,39 @@ class Row:
         top = max((k for k in parts if parts[k] is not None), key=lambda k: parts[k])
         return "noise" if top == "model" and self.model_err_is_noise else top
 
-    def delta_f(self, volume):
+    def delta_f(self, volume, guard=0):
         """(Delta f, its statistical error) with Delta f = -ln|Z(mu)/Z(0)| / V,
         as strings rounded where the total error puts the last supported
-        digit; ('', '') without a volume or without support."""
+        digit (``guard`` digits further); ('', '') without a volume or
+        without support."""
         if volume is None or self.last_digit is None:
             return "", ""
         mag = self.magnitude
         value = -mpmath.log(mag) / volume
         err = self.total_err / mag / volume
-        stat = "" if self.stat_err is None else error_string(self.stat_err / mag / volume)
-        return _round_to_error(value, err, self.digits), stat
+        stat = "" if self.stat_err is None else (
+            "0" if self.mu == 0 else error_string(self.stat_err / mag / volume))
+        return _round_to_error(value, err, self.digits, guard), stat
 
 
 def _sci(x, nsig):
-    with mpmath.workdps(max(15, nsig + 5)):
-        s = mpmath.nstr(x, max(1, nsig), min_fixed=-4, max_fixed=6, strip_zeros=False)
+    if hasattr(x, "_mpf_"):
+        # what mpmath.nstr does for a real mpf, without entering a precision context
+        s = to_str(x._mpf_, max(1, nsig), min_fixed=-4, max_fixed=6, strip_zeros=False)
+    else:
+        with mpmath.workdps(max(15, nsig + 5)):
+            s = mpmath.nstr(x, max(1, nsig), min_fixed=-4, max_fixed=6, strip_zeros=False)
     return s.replace(".e", "e").replace("e+", "e").rstrip(".")
 
 
-def _round_to_error(value, err, digits):
+def _round_to_error(value, err, digits, guard=0):
     if value == 0:
         return "0"
     top = int(mpmath.floor(mpmath.log10(abs(value))))
     last = top - digits + 1
     if err > 0:
         last = max(last, int(mpmath.floor(mpmath.log10(err))))
-    nsig = top - last + 1
+    nsig = top - last + 1 + guard
     return "0" if nsig < 1 else _sci(value, nsig)
 
 
@@ -206,9 +231,35 @@ def error_string(e):
     return "0" if e == 0 else _sci(e, 2)
 
 
+MU_DIGITS = 20   # significant digits of a mu that has no finite decimal
+
+
 def format_mu(mu):
-    """mu as a short decimal (at most 15 significant digits)."""
-    s = mpmath.nstr(mpmath.mpf(mu.numerator) / mu.denominator, 15)
+    """mu as the exact decimal it is (0.1 stays 0.1, 0.123456789012345678
+    keeps every digit); a fraction without a finite decimal (1/3 from
+    0:1:4) to MU_DIGITS significant digits; a mu off the real axis by its
+    own text ('0.5i', '0.3+0.2i')."""
+    if isinstance(mu, int):
+        return str(mu)
+    if not isinstance(mu, (Fraction, float, mpmath.mpf)):
+        return str(mu)
+    if isinstance(mu, Fraction):
+        den, k2, k5 = mu.denominator, 0, 0
+        while den % 2 == 0:
+            den, k2 = den // 2, k2 + 1
+        while den % 5 == 0:
+            den, k5 = den // 5, k5 + 1
+        if den == 1:
+            k = max(k2, k5)
+            n = abs(mu.numerator) * 10 ** k // mu.denominator
+            digits = str(n).rjust(k + 1, "0")
+            text = digits[:len(digits) - k] + ("." + digits[len(digits) - k:] if k else "")
+            text = text.rstrip("0").rstrip(".") if k else text
+            return ("-" if mu < 0 else "") + text
+    with mpmath.workdps(MU_DIGITS + 5):
+        if isinstance(mu, Fraction):
+            mu = mpmath.mpf(mu.numerator) / mu.denominator
+        s = mpmath.nstr(mpmath.mpmathify(mu), MU_DIGITS)
     return s[:-2] if s.endswith(".0") else s
 
 
@@ -220,21 +271,30 @@ class ResultTable:
     model_label: str
     volume: float = None
     info: dict = field(default_factory=dict)
+    # further columns per row (name -> one string per row) and further rows
+    # (dicts by column name, e.g. at mu off the real axis), both appended by
+    # records() and columns()
+    extra_columns: dict = field(default_factory=dict)
+    extra_rows: list = field(default_factory=list)
 
+    GUARD_DIGITS = 2   # digits past the last supported one in results.csv
     COLUMNS = ("mu", "avg_phase", "avg_phase_imag", "avg_phase_err", "delta_f",
                "delta_f_err", "cancel_orders", "quad_err", "model_err", "edge_err",
                "status", "degree", "naive_samples")
 
-    def records(self):
-        """Rows as dicts of strings, in the column order of results.csv."""
+    def records(self, guard=0):
+        """Rows as dicts of strings, in the column order of results.csv.
+        Values are rounded where their total error puts the last supported
+        digit; ``guard`` digits more are kept for values that feed further
+        fits (results.csv keeps GUARD_DIGITS)."""
         out = []
         for r in self.rows:
-            df, dferr = r.delta_f(self.volume)
+            df, dferr = r.delta_f(self.volume, guard)
             out.append({
                 "mu": format_mu(r.mu),
-                "avg_phase": r.avg_phase,
-                "avg_phase_imag": r.avg_phase_imag,
-                "avg_phase_err": error_string(r.stat_err),
+                "avg_phase": r.part(r.value.real, guard),
+                "avg_phase_imag": r.part(r.value.imag, guard),
+                "avg_phase_err": r.stat_err_text,
                 "delta_f": df,
                 "delta_f_err": dferr,
                 "cancel_orders": "" if r.cancel_orders is None else f"{r.cancel_orders:.2f}",
@@ -245,7 +305,60 @@ class ResultTable:
                 "degree": "" if r.degree is None else str(r.degree),
                 "naive_samples": _power_of_ten(r.naive_log10_samples),
             })
+        for name, values in self.extra_columns.items():
+            for rec, v in zip(out, values):
+                rec[name] = v
+        columns = self.columns()
+        out.extend({c: rec.get(c, "") for c in columns} for rec in self.extra_rows)
         return out
+
+    def columns(self):
+        """The columns of records(): COLUMNS, then the extra ones."""
+        return self.COLUMNS + tuple(c for c in self.extra_columns if c not in self.COLUMNS)
+
+    # the notebook form: float columns for computing, exact strings beside them
+    ARRAY_FIELDS = (("mu", "f8"), ("re", "f8"), ("im", "f8"), ("stat_err", "f8"),
+                    ("quad_err", "f8"), ("model_err", "f8"), ("edge_err", "f8"),
+                    ("total_err", "f8"), ("cancel_orders", "f8"), ("delta_f", "f8"),
+                    ("delta_f_err", "f8"), ("degree", "f8"), ("naive_samples_log10", "f8"),
+                    ("mu_text", "U40"), ("avg_phase", "U40"), ("avg_phase_imag", "U40"),
+                    ("status", "U16"))
+
+    def to_numpy(self):
+        """The table as a NumPy structured array, one element per mu: float
+        columns (mu, re, im, the errors, cancel_orders, delta_f, degree,
+        naive_samples_log10; nan where a value is unknown; values below
+        1e-308 become 0.0, so use cancel_orders for the magnitude there) and
+        the exact strings of results.csv (mu_text, avg_phase, avg_phase_imag
+        with only the supported digits, status)."""
+        import numpy as np
+        out = np.zeros(len(self.rows), dtype=list(self.ARRAY_FIELDS))
+        nan = float("nan")
+        for i, (r, rec) in enumerate(zip(self.rows, self.records())):
+            mag = r.magnitude
+            df = dferr = nan
+            if self.volume is not None and mag > 0:
+                df = float(-mpmath.log(mag) / self.volume)
+                if r.stat_err is not None:
+                    dferr = float(r.stat_err / mag / self.volume)
+
+            def f(x):
+                return nan if x is None else float(x)
+            out[i] = (float(r.mu), float(r.value.real), float(r.value.imag), f(r.stat_err),
+                      f(r.quad_err), f(r.model_err), f(r.edge_err), float(r.total_err),
+                      f(r.cancel_orders), df, dferr, f(r.degree), f(r.naive_log10_samples),
+                      rec["mu"], rec["avg_phase"], rec["avg_phase_imag"], r.status)
+        return out
+
+    def to_pandas(self):
+        """:meth:`to_numpy` as a pandas DataFrame (pandas is an optional
+        extra: ``pip install signfree[pandas]``)."""
+        try:
+            import pandas
+        except ImportError:
+            raise ImportError("to_pandas needs pandas (pip install 'signfree[pandas]'); "
+                              "to_numpy gives the same table without it") from None
+        return pandas.DataFrame.from_records(self.to_numpy())
 
     def status_counts(self):
         counts = {s: 0 for s in STATUSES}
@@ -366,3 +479,6 @@ class Analysis:
     transform: object
     table: ResultTable
     seconds: float
+    observables: object = None   # analysis.observables.ObservableResult, when asked for
+    samples: object = None      # the raw samples the density was binned from, if any
+    replica_rows: tuple = None  # (method, first row, count) of the resampled fits in transform

@@ -85,7 +85,7 @@ def _spread(method, points):
 
 def _structure_shift(density, fit, zero, ev):
     """dZ / |Z'| at the zero (module docstring), as mpf."""
-    res, keep = budget.residuals(density, fit.model, fit.correction)
+    res, keep = budget.residuals(density, fit.model, fit.correction, fit.sigma)
     omegas, weights, F = budget.ripple_modes(density, fit.model, fit.sigma, res,
                                              abs(float(zero.re)), keep)
     if F is None:
@@ -99,7 +99,7 @@ def _structure_shift(density, fit, zero, ev):
                        ev.prec)
     scale = engine.abs_mid(norm[0])
     mags = np.array([float(engine.upper(z) / scale) for z in zs])
-    G = mags[J + 1:] + mags[:J][::-1]          # |F(z + w_j)| + |F(z - w_j)|
+    G = mags[J + 1:] + mags[:J][::-1]          # |F(z + w_j)| + |F(z - w_j)|, either phase
     dZ = budget.combine(weights, G)
     slope = engine.abs_mid(ds[J]) / scale
     return dZ / slope if slope > 0 else mpmath.inf

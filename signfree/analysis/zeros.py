@@ -48,7 +48,7 @@ from fractions import Fraction
 import mpmath
 import numpy as np
 
-from signfree import engine
+from signfree import engine, progress
 from signfree.analysis.contour import Counter, _cplx, _roots_from_power_sums
 from signfree.engine.complex_mu import ContourError, Evaluator, _fmt_complex, _frac
 
@@ -359,6 +359,7 @@ class _Search:
         return None
 
     def solve(self, box, count, depth=0):
+        progress.report("zeros: isolating", detail=f"{count} in a box at depth {depth}")
         if count == 0:
             return []
         re0, re1, im0, im1 = box

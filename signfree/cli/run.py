@@ -1,29 +1,32 @@
-"""``signfree run INPUT [INPUT ...] --mu SPEC ...``: analyse density files and
-write results.csv and summary.json per input (several inputs in parallel
-processes with --jobs)."""
+"""``signfree run INPUT [INPUT ...] --mu SPEC ...``: analyse density or sample
+files and write results.csv and summary.json per input (several inputs in
+parallel processes with --jobs; figures with --plots)."""
+import signal
 import sys
-import threading
-import time
 from pathlib import Path
 
-from signfree.cli.options import add_analysis_options, fail, settings_from_args
+from signfree.cli.display import ProgressLine
+from signfree.cli.options import (INPUT_HELP, add_analysis_options, add_figure_options,
+                                  add_output_options, fail, figure_field, handler,
+                                  output_folder, settings_from_args)
 from signfree.report.outputs import analyse_file, report_text
 
-HELP = "analyse density files"
+HELP = "analyse density or sample files"
 
 
 def add_parser(sub):
-    run = sub.add_parser("run", help=HELP)
-    run.add_argument("input", nargs="+",
-                     help="CSV file(s) (kind slopes, log_density or histogram)")
+    run = sub.add_parser("run", help=HELP, description=(
+        "Smooth each input's density, compute Z(mu)/Z(0) for every mu with its error "
+        "budget and status, and write results.csv and summary.json."))
+    run.add_argument("input", nargs="+", help=INPUT_HELP)
     add_analysis_options(run)
-    run.add_argument("--out", metavar="DIR", help="output folder (default: a new folder); "
-                     "with several inputs one subfolder per input")
+    add_output_options(run, several=True)
     run.add_argument("--jobs", type=int, default=1, metavar="N",
                      help="analyse several inputs in N parallel processes")
-    run.add_argument("--quiet", action="store_true", help="no progress display")
+    run.add_argument("--quiet", action="store_true", help="no progress line")
     run.add_argument("--plots", action="store_true",
-                     help="also write the figures (fig_*.png and fig_*.pdf)")
+                     help="also write the figures (fig_fit, fig_phase, fig_depth as PNG and PDF)")
+    add_figure_options(run)
     run.set_defaults(handler=cmd_run)
     return run
 
@@ -32,8 +35,13 @@ def run_files(input_path, args, reference=None):
     """Read, analyse and prepare the files of one run from parsed options;
     raises InputError or ValueError on bad input before anything is written."""
     settings = settings_from_args(args)
-    return analyse_file(input_path, args.mu, settings, kind=args.kind, volume=args.volume,
-                        symmetry=args.symmetry)
+    result, files = analyse_file(input_path, args.mu, settings, kind=args.kind,
+                                 volume=args.volume, symmetry=args.symmetry)
+    if getattr(args, "covariance", False):
+        from signfree.analysis.covariance import COLUMNS, covariance_records
+        from signfree.io.writing import csv_text
+        files["covariance.csv"] = csv_text(COLUMNS, covariance_records(result))
+    return result, files
 
 
 def _analyse_one(job):
@@ -47,82 +55,65 @@ def _analyse_one(job):
     except (InputError, ValueError) as exc:
         return path, None, str(exc)
     if getattr(args, "plots", False):
-        from signfree.report.figures import figures_files
-        files.update(figures_files(result))
+        from signfree.report.figures import figures_files, write_figures
+        from signfree.report.observables import observable_figures
+        files.update(figures_files(result, field=figure_field(args)))
+        files.update(write_figures(observable_figures(result)))
     return path, report_text(result), files
 
 
-class Progress:
-    """Elapsed time and files done on stderr, shown only on a terminal and
-    only once a run has taken more than two seconds."""
-
-    def __init__(self, total, quiet=False):
-        self.total, self.done, self.start = total, 0, time.time()
-        self.active = not quiet and sys.stderr.isatty()
-        self._stop = threading.Event()
-        self._thread = threading.Thread(target=self._loop, daemon=True)
-        if self.active:
-            self._thread.start()
-
-    def _loop(self):
-        while not self._stop.wait(0.5):
-            elapsed = time.time() - self.start
-            if elapsed > 2:
-                width = 24
-                fill = int(width * self.done / self.total)
-                sys.stderr.write(f"\rsignfree [{'#' * fill}{'.' * (width - fill)}] "
-                                 f"{self.done}/{self.total} files, {elapsed:.0f} s")
-                sys.stderr.flush()
-
-    def step(self):
-        self.done += 1
-
-    def close(self):
-        if self.active:
-            self._stop.set()
-            self._thread.join()
-            if time.time() - self.start > 2:
-                sys.stderr.write("\r" + " " * 60 + "\r")
+def _ignore_interrupts():
+    """Child processes leave Ctrl-C to the parent, which stops them."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
+def subfolder_names(inputs):
+    """One subfolder name per input: the file's stem, numbered where stems
+    repeat."""
+    stems = [Path(str(p).split(".h5:")[0]).stem for p in inputs]
+    return [s if stems.count(s) == 1 else f"{s}-{i + 1}" for i, s in enumerate(stems)]
+
+
+@handler
 def cmd_run(args):
-    from signfree.io.writing import new_folder_name, write_files
+    from signfree.io.writing import write_files
     if args.jobs < 1:
         return fail(f"--jobs {args.jobs}: expected at least 1")
+    settings_from_args(args)          # option mistakes before any work
+    folder = output_folder(args, "signfree-run")
     jobs = [(path, args) for path in args.input]
-    progress = Progress(len(jobs), args.quiet)
     outcomes = []
-    try:
+    with ProgressLine(len(jobs), args.quiet) as line:
         if args.jobs > 1 and len(jobs) > 1:
             import multiprocessing
-            with multiprocessing.get_context("spawn").Pool(min(args.jobs, len(jobs))) as pool:
+            ctx = multiprocessing.get_context("spawn")
+            with ctx.Pool(min(args.jobs, len(jobs)), initializer=_ignore_interrupts) as pool:
                 for outcome in pool.imap(_analyse_one, jobs):
                     outcomes.append(outcome)
-                    progress.step()
+                    line.file_done()
         else:
             for job in jobs:
                 outcomes.append(_analyse_one(job))
-                progress.step()
-    finally:
-        progress.close()
+                line.file_done()
     failed = [message for _, result, message in outcomes if result is None]
     if failed:
         for message in failed:
             fail(message)
         return 2
     if len(outcomes) == 1:
-        targets = [Path(args.out) if args.out else new_folder_name()]
+        files = outcomes[0][2]
+        places = [folder]
     else:
-        base = Path(args.out) if args.out else new_folder_name()
-        base.mkdir(parents=True, exist_ok=True)
-        stems = [Path(p).stem for p in args.input]
-        names = [s if stems.count(s) == 1 else f"{s}-{i + 1}" for i, s in enumerate(stems)]
-        targets = [base / name for name in names]
-    for (path, text, files), target in zip(outcomes, targets):
-        folder = write_files(target, files)
+        names = subfolder_names(args.input)
+        files = {f"{name}/{fname}": data for name, (_, _, out) in zip(names, outcomes)
+                 for fname, data in out.items()}
+        places = [folder / name for name in names]
+    write_files(folder, files, force=args.force)
+    for (path, text, out), place in zip(outcomes, places):
         sys.stdout.write(text)
-        print(f"wrote {folder / 'results.csv'} and {folder / 'summary.json'}")
+        figures = sum(1 for name in out if name.startswith("fig_"))
+        extra = f" and {figures} figure files" if figures else ""
+        print(f"wrote {place / 'results.csv'}, {place / 'summary.json'}{extra}")
         if len(outcomes) > 1:
             print()
     return 0
-

@@ -15,6 +15,7 @@ Modules:
                  two-component densities (sums of Chebyshev transforms)
   moments        cumulants of a model's density by quadrature
   complex_mu     Z and Z' at complex mu (for zeros and cumulant radii)
+  sums           exact sums over a charge lattice (theta terms, magnetisation)
 
 The engine takes models through their shared interface: each model names the
 form of its integrand (``model.integrand``), and :func:`transform` sends the
@@ -26,7 +27,8 @@ from signfree.engine.balls import (GUARD_DIGITS, LOG2_10, MAX_NODES, MAX_PREC, a
 from signfree.engine.transforms import Transform
 
 
-def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=()):
+def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=(),
+              path="auto"):
     """Z(mu)/Z(0) for every model of a batch (rows) and every mu (columns),
     as a :class:`Transform` (values with their quadrature-plus-rounding
     bounds). All models of a batch share one integrand form and domain.
@@ -35,7 +37,10 @@ def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=(
     (the rest, such as replicas, ride along with the same rule);
     ``gradient``: coefficient indices whose derivatives dZ/dc_k are wanted
     (Chebyshev exponents only); ``certify``: rigorous acb.integral
-    enclosures where the route has a quadrature error at all."""
+    enclosures where the route has a quadrature error at all; ``path``:
+    'auto' (each mu along the path through the saddle with the smallest
+    cancellation, :mod:`signfree.engine.paths`) or 'real' (the real axis
+    only, the cross-check)."""
     forms = {getattr(m, "integrand", None) for m in models}
     if len(forms) != 1:
         raise ValueError(f"one batch holds one integrand form, got {sorted(map(str, forms))}")
@@ -43,7 +48,11 @@ def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=(
     if form == "chebyshev-exponent":
         from signfree.engine.transforms import chebyshev_transform
         return chebyshev_transform(models, mus, digits=digits, certify=certify,
-                                   check_rows=check_rows, gradient=gradient)
+                                   check_rows=check_rows, gradient=gradient, path=path)
+    if form == "lattice-sum":
+        from signfree.engine.sums import lattice_transform
+        return lattice_transform(models, mus, digits=digits, check_rows=check_rows,
+                                 gradient=gradient)
     if gradient:
         raise ValueError(f"models of form {form!r} have no coefficients to differentiate")
     if form == "piecewise-linear":
@@ -56,7 +65,7 @@ def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=(
     if form == "two-component":
         from signfree.engine.general import two_component_transform
         return two_component_transform(models, mus, digits=digits, certify=certify,
-                                       check_rows=check_rows)
+                                       check_rows=check_rows, path=path)
     if form == "cumulant-series":
         from signfree.engine.closed_forms import cumulant_series_transform
         return cumulant_series_transform(models, mus, digits=digits)

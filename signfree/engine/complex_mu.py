@@ -17,7 +17,7 @@ from fractions import Fraction
 
 import mpmath
 import numpy as np
-from flint import acb, acb_mat, arb, ctx, fmpq
+from flint import acb, acb_mat, arb, arb_mat, ctx, fmpq
 
 from signfree.engine.balls import LOG2_10, MAX_NODES, MAX_PREC, abs_mid, precision_bits, to_mpf, upper
 from signfree.engine.rules import chebyshev_at_nodes, gauss_legendre_rule
@@ -74,10 +74,11 @@ class Evaluator:
     """Z(mu) and Z'(mu) of one Chebyshev model at complex mu (pairs of
     Fractions), with the precision and node count kept adequate."""
 
-    def __init__(self, model, box, digits):
+    def __init__(self, model, box, digits, use_path=True):
         if getattr(model, "integrand", None) != "chebyshev-exponent":
             raise TypeError("Z at complex mu is evaluated for Chebyshev models of ln rho")
         self.model = model
+        self.box, self.digits, self.twin = box, digits, None
         self.coef = [float(c) for c in model.coef]
         self.degree = max(len(self.coef) - 1, 1)
         a, b = model.domain
@@ -102,12 +103,40 @@ class Evaluator:
         # units); the probes raise it where needed
         self.n = _ladder(int(16 + 0.35 * mu_max * self.half
                              + 0.3 * math.sqrt(2.3 * (depth + digits + 5) / var) * self.half))
+        # a box far from Re mu = 0 is integrated along one path through the
+        # saddle region (signfree.engine.paths): there the sums do not cancel
+        # over the depth; the node count n then scales the planned panels (n / 32)
+        self.path = None
+        planned = self._path((re0, re1, im0, im1), depth, digits) if use_path else None
+        if planned is not None:
+            self.path, ratio = planned
+            depth = max(ratio, 0.0) / math.log(10)
+            if self.path is not None:
+                self.n = 32
+            else:   # the real axis, with the depth of the plan (it sees several peaks)
+                self.n = _ladder(int(16 + 0.35 * mu_max * self.half + 0.3 * math.sqrt(
+                    2.3 * (depth + digits + 5) / var) * self.half))
         self.prec = precision_bits(depth, 10, float(np.abs(p).max()), self.n)
         self.cache = {}
         self.eps = {}
         self.probes = [(_frac(r), _frac(i)) for r in (re0, 0.5 * (re0 + re1), re1)
                        for i in (im0, 0.5 * (im0 + im1), im1)]
         self.evaluations = 0
+
+    def _path(self, box, depth, digits):
+        """(the common path for the box or None for the real axis, the
+        planned cancellation on it in nats), or None when the box is too
+        shallow to plan. A box that straddles Re mu = 0 (where the saddle
+        changes side) stays on the real axis."""
+        from signfree.engine import paths
+        re0, re1, im0, im1 = box
+        if depth * math.log(10) <= paths.ALLOWANCE:
+            return None
+        probes = [complex(r, i) for r in np.linspace(re0, re1, 5)
+                  for i in (im0, 0.5 * (im0 + im1), im1)]
+        group = paths.plan(self.coef, self.domain, probes, digits + 4, common=True,
+                           force_real=re0 * re1 <= 0)[0]
+        return (group.path if group.path.height != 0 else None), max(group.log_ratio)
 
     @property
     def n_used(self):
@@ -117,8 +146,31 @@ class Evaluator:
     def _next(n):
         return _ladder((3 * n + 1) // 2)
 
+    def _path_nodes(self, n, prec):
+        """Nodes, weights and ln |weights| along the planned path, every
+        panel's node count scaled by n / 32."""
+        from signfree.engine.path_sums import chebyshev_table, path_nodes, _log10_abs
+        xs, wx = path_nodes(self.path, n / 32, prec)
+        Tre, Tim = chebyshev_table(xs, len(self.coef) - 1, prec)
+        with ctx.workprec(prec):
+            cm = arb_mat([[arb(c) for c in self.coef]])
+            Pre, Pim = cm * Tre, cm * Tim
+            shift = arb(self.shift)
+            a, b = arb(self.domain[0]), arb(self.domain[1])
+            half, mid = (b - a) / 2, (a + b) / 2
+            qs = [mid + half * x for x in xs]
+            W = [half * w * acb(Pre[0, j] - shift, Pim[0, j]).exp() for j, w in enumerate(wx)]
+            Wq = [wj * qj for wj, qj in zip(W, qs)]
+        logw = np.array([_log10_abs(w) * math.log(10) for w in W])
+        qf = np.array([complex(float(q.real.mid()), float(q.imag.mid())) for q in qs])
+        return qs, W, Wq, logw, qf
+
     def nodes(self, n, prec):
         key = (n, prec)
+        if key not in self.cache and self.path is not None:
+            if len(self.cache) > 12:
+                self.cache.pop(next(iter(self.cache)))
+            self.cache[key] = self._path_nodes(n, prec)
         if key not in self.cache:
             xs, ws = gauss_legendre_rule(n, prec)
             vals = chebyshev_at_nodes(self.coef, n, prec)
@@ -137,10 +189,13 @@ class Evaluator:
             self.cache[key] = (qs, W, Wq, logw, qf)
         return self.cache[key]
 
-    def log_scale(self, mu_im, n):
-        """ln Int |exp(p + i mu q)| dq (over the nodes), up to the common shift."""
+    def log_scale(self, mu, n):
+        """ln Int |exp(p + i mu q)| dq (over the nodes), up to the common
+        shift; ``mu`` a complex pair (or, on the real axis, its imaginary part)."""
         _, _, _, logw, qf = self.nodes(n, self.prec)
-        t = logw - float(mu_im) * qf
+        re, im = (float(mu[0]), float(mu[1])) if isinstance(mu, tuple) else (0.0, float(mu))
+        # |exp(i mu q)| = exp(-Re mu Im q - Im mu Re q)
+        t = logw - im * np.real(qf) - re * np.imag(qf)
         top = t.max()
         return float(top + math.log(np.exp(t - top).sum()))
 
@@ -195,16 +250,35 @@ class Evaluator:
                 z0, _ = self._sums(p, (Fraction(0), Fraction(0)), 1, n, self.prec)
                 z1, _ = self._sums(p, (Fraction(0), Fraction(0)), 1, n1, self.prec)
                 diff = upper(z0[0] - z1[0])
-                ls = self.log_scale(p[1], n1)
+                ls = self.log_scale(p, n1)
                 rel = -math.inf if diff == 0 else float(mpmath.log(diff)) - ls
                 worst = max(worst, math.exp(min(max(rel, -700.0), 700.0)))
             self.eps[n] = worst
         return self.eps[n]
 
+    def _outside(self, points):
+        """True when a path is in use and a point lies outside the box (with
+        a margin of a tenth of its size): the path and its quadrature checks
+        were made for the box only."""
+        if self.path is None:
+            return False
+        re0, re1, im0, im1 = (float(v) for v in self.box)
+        dr, di = 0.1 * (re1 - re0) + 1e-9, 0.1 * (im1 - im0) + 1e-9
+        return any(not (re0 - dr <= float(r) <= re1 + dr and im0 - di <= float(i) <= im1 + di)
+                   for r, i in points)
+
+    def _axis(self):
+        """The same model along the real axis (for points outside the box)."""
+        if self.twin is None:
+            self.twin = Evaluator(self.model, self.box, self.digits, use_path=False)
+        return self.twin
+
     def segment(self, start, step, count, want_bits=PHASE_BITS):
         """(Z_k, Z'_k) on a segment with relative accuracy 2^-want_bits of
         each Z_k (rounding and quadrature); raises ContourError where that
         cannot be reached because Z_k is (nearly) zero."""
+        if self._outside([start, _point(start, step, count - 1)]):
+            return self._axis().segment(start, step, count, want_bits)
         tries = 0
         while True:
             tries += 1
@@ -223,7 +297,7 @@ class Evaluator:
             bad = None
             for k, z in enumerate(zs):
                 mu = _point(start, step, k)
-                if math.log(max(eps, 1e-300)) + self.log_scale(mu[1], N) - _log_abs(z) \
+                if math.log(max(eps, 1e-300)) + self.log_scale(mu, N) - _log_abs(z) \
                         > -want_bits * math.log(2):
                     bad = mu
                     break
@@ -240,6 +314,8 @@ class Evaluator:
         """(Z, Z', error bound of Z) at mu with the absolute error of Z below
         10^-(digits+2) * scale * |Z'|, so that the Newton step is good to
         ``digits`` digits of ``scale``."""
+        if self._outside([mu]):
+            return self._axis().point_for_newton(mu, digits, scale)
         zero = (Fraction(0), Fraction(0))
         for _ in range(16):
             N = self.n_used
@@ -254,11 +330,11 @@ class Evaluator:
                 extra = float(mpmath.log(rad / target, 2)) + 32
                 self.prec = min(MAX_PREC, int(self.prec + extra + 63) // 64 * 64)
                 continue
-            quad = mpmath.mpf(self._quad_eps(self.n)) * mpmath.exp(self.log_scale(mu[1], N))
+            quad = mpmath.mpf(self._quad_eps(self.n)) * mpmath.exp(self.log_scale(mu, N))
             if quad > target and self.n_used <= MAX_NODES:
                 self.probes.append(mu)
                 self.eps.pop(self.n, None)
-                if mpmath.mpf(self._quad_eps(self.n)) * mpmath.exp(self.log_scale(mu[1], N)) \
+                if mpmath.mpf(self._quad_eps(self.n)) * mpmath.exp(self.log_scale(mu, N)) \
                         > target:
                     self.n = self.n_used
                 continue
@@ -292,7 +368,8 @@ def phase_factor(model, mu, digits=12):
     want = int((digits + 2) * LOG2_10)
     zero = (Fraction(0), Fraction(0))
     z, _ = ev.segment(p, zero, 1, want_bits=want)
-    z0, _ = ev.segment(zero, zero, 1, want_bits=want)
+    # Z(0) on the real axis, with the same normalisation (the model's shift)
+    z0, _ = Evaluator(model, (-1, 1, -1, 1), digits).segment(zero, zero, 1, want_bits=want)
     with mpmath.workdps(digits + 10):
         r = z[0] / z0[0]
         return mpmath.mpc(to_mpf(r.real), to_mpf(r.imag))

@@ -410,10 +410,11 @@ def _mass_sums(forms, parts, counts, prec, domain):
         return [sum((w * (v - shift).exp() for w, v in zip(ws, row)), arb(0)) for row in vals]
 
 
-def two_component_transform(models, mus, digits=12, certify=False, check_rows=None):
+def two_component_transform(models, mus, digits=12, certify=False, check_rows=None,
+                            path="auto"):
     """Z(mu)/Z(0) of two-component models (module docstring), from the
-    components' own transforms, each asked for as many more digits as the
-    two cancel."""
+    components' own transforms (along ``path``, as engine.transform), each
+    asked for as many more digits as the two cancel."""
     from signfree import engine
     mus = as_fractions(mus)
     K = len(mus)
@@ -422,9 +423,9 @@ def two_component_transform(models, mus, digits=12, certify=False, check_rows=No
     while True:
         want = digits + extra
         t1 = engine.transform([m.first for m in models], mus, digits=want, certify=certify,
-                              check_rows=check_rows)
+                              check_rows=check_rows, path=path)
         t2 = engine.transform([m.second for m in models], mus, digits=want, certify=certify,
-                              check_rows=check_rows)
+                              check_rows=check_rows, path=path)
         ratio, ratio_err, wprec = _mass_ratios(models, want + 4)
         prec = max(t1.prec, t2.prec, wprec) + 32
         values, cancel = [], 0.0

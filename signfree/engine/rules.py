@@ -22,6 +22,8 @@ from pathlib import Path
 from flint import acb, arb, arb_mat, ctx
 
 MAX_CACHED = 24
+DISK_MIN_NODES = 256            # smaller rules cost milliseconds: not worth a file
+DISK_BUDGET = 64 * 1024 * 1024  # bytes of rules kept on disk; least recently used go first
 
 def on_ladder(n):
     """The smallest node count >= n on the ladder 32 * 1.1^k (rounded up),
@@ -72,6 +74,7 @@ def _read_rule(n, prec):
     if best is None:
         return None
     try:
+        os.utime(best[1])   # recently used: kept longest by the eviction
         lines = best[1].read_text().split("\n")
         with ctx.workprec(best[0] + 16):
             half = [(_ball(f[:4]), _ball(f[4:])) for f in (ln.split() for ln in lines if ln)]
@@ -91,8 +94,47 @@ def _write_rule(n, prec, half):
         with os.fdopen(fd, "w") as f:
             f.write(text)
         os.replace(tmp, folder / f"gauss-legendre-{n}-{prec}.txt")
+        _evict(folder, DISK_BUDGET)
     except OSError:
         pass  # a cache that cannot be written only costs time
+
+
+def _evict(folder, budget):
+    """Keep the rule files in ``folder`` within ``budget`` bytes: a rule with
+    the same node count at a higher precision on disk makes a file redundant
+    (the higher one serves every lower precision), then the least recently
+    used go first; the most recent file always stays."""
+    files = []
+    for path in folder.glob("gauss-legendre-*.txt"):
+        try:
+            st = path.stat()
+            n, p = (int(t) for t in path.stem.split("-")[2:4])
+        except (OSError, ValueError):
+            continue
+        files.append((st.st_mtime, st.st_size, n, p, path))
+    top = {}
+    for _, _, n, p, _ in files:
+        top[n] = max(top.get(n, 0), p)
+    kept = []
+    for f in files:
+        if f[3] < top[f[2]]:
+            _unlink(f[4])
+        else:
+            kept.append(f)
+    kept.sort(key=lambda f: f[0])
+    total = sum(f[1] for f in kept)
+    for f in kept[:-1]:
+        if total <= budget:
+            break
+        _unlink(f[4])
+        total -= f[1]
+
+
+def _unlink(path):
+    try:
+        path.unlink()
+    except OSError:
+        pass
 
 
 def gauss_legendre(n, prec):
@@ -109,11 +151,12 @@ def gauss_legendre(n, prec):
             with ctx.workprec(prec + 16):
                 _NODES[n, prec] = (tuple(+x for x in xs), tuple(+w for w in ws))
             return _NODES[n, prec]
-    half = _read_rule(n, prec)
+    half = _read_rule(n, prec) if n >= DISK_MIN_NODES else None
     if half is None:
         with ctx.workprec(prec + 16):
             half = [arb.legendre_p_root(n, k, weight=True) for k in range((n + 1) // 2)]
-        _write_rule(n, prec, half)
+        if n >= DISK_MIN_NODES:
+            _write_rule(n, prec, half)
     with ctx.workprec(prec + 16):  # negation rounds too: keep it inside
         xs = [x for x, _ in half] + [-x for x, _ in reversed(half[: n // 2])]
         ws = [w for _, w in half] + [w for _, w in reversed(half[: n // 2])]

@@ -30,10 +30,10 @@ import mpmath
 import numpy as np
 from flint import acb, acb_mat, arb, arb_mat, ctx
 
+from signfree import progress
 from signfree.engine.balls import (MAX_NODES, MAX_PREC, abs_mid, arb_of as _arb, as_fractions,
                                    difference, exp_i as _exp_i, precision_bits,
                                    relative_radius as _relative_radius, uniform_step, upper)
-from signfree.engine.certification import certified as _certified
 from signfree.engine.rules import chebyshev_matrix, gauss_legendre, on_ladder as _on_ladder
 
 
@@ -51,6 +51,12 @@ class Transform:
     mus        the mu values used, as exact fractions
     gradient   for chebyshev_transform(..., gradient=ks): (rows over k of
                dZ_0(mu)/dc_k / Z_0(0), list over k of dZ_0(0)/dc_k / Z_0(0))
+    heights    per mu: Im q of the horizontal part of the path of integration
+               (0: the real axis); None for routes without quadrature
+    path_orders  per mu: log10 of the largest term of the quadrature sum over
+               |Z(mu)| (row 0, measured on a shifted path; on the real axis
+               the cancellation depth, an upper bound): the orders the sum
+               cancels over
     """
 
     values: list
@@ -62,6 +68,8 @@ class Transform:
     method: str
     mus: list
     gradient: tuple = None
+    heights: list = None
+    path_orders: list = None
 
 
 def _model_profile(coef, domain):
@@ -240,8 +248,38 @@ def _check_set(mus, values, chunks):
     return top, sorted(k for k in picked if not top[0] <= k < top[1])
 
 
+def _shifted(models, rows, domain, mus, digits, var, check_rows, gradient, certify):
+    """(the transform along paths through the saddle, None) or, when the
+    real axis is the best path for every mu, (None, the planned real-axis
+    cancellation per mu in decimal orders, or None when the scan is too
+    shallow for a shifted path to gain: Gaussian depth estimate below the
+    allowance)."""
+    from signfree.engine import path_sums, paths
+    top = max(float(m) ** 2 for m in mus) * var / (2 * math.log(10))
+    if top * math.log(10) <= paths.ALLOWANCE:
+        return None, None
+    even = _is_even(rows, domain)
+    mf = [float(m) for m in mus]
+    groups = paths.plan(models[0].coef, domain, mf, digits, even)
+    if all(g.path.height == 0 for g in groups):
+        return None, [max(r, 0.0) / math.log(10) for g in groups for r in g.log_ratio]
+    normaliser = paths.plan(models[0].coef, domain, [0.0], digits, even, force_real=True)[0]
+    out = path_sums.path_transform(rows, domain, mus, groups, normaliser, digits,
+                                   check_rows, tuple(gradient))
+    tr = Transform(**out)
+    if certify:
+        from signfree.engine.certification import certified as _certified
+        cert, cert_quad, cert_ok = _certified(models[:check_rows], mus, digits, tr.values,
+                                              tr.prec, groups=groups)
+        tr.values = cert + tr.values[check_rows:]
+        tr.quad_err = cert_quad + tr.quad_err[check_rows:]
+        tr.resolved = [a and b for a, b in zip(tr.resolved, cert_ok)]
+        tr.method = "acb.integral-path"
+    return tr, None
+
+
 def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
-                        gradient=()):
+                        gradient=(), path="auto"):
     """Z(mu)/Z(0) for Chebyshev models sharing one domain.
 
     The working precision is chosen per piece of the mu list from the
@@ -260,19 +298,34 @@ def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
     same rule; their quad_err is None. ``gradient`` lists coefficient indices
     k whose derivatives dZ_0/dc_k are wanted: they come back in
     ``Transform.gradient`` as (rows over k of Int T_k exp(p_0 + i mu q) /
-    Z_0(0), the same at mu = 0)."""
+    Z_0(0), the same at mu = 0).
+
+    ``path``: 'auto' integrates each mu along the path with the smallest
+    cancellation (:mod:`signfree.engine.paths`; the real axis where no
+    shifted line does better), 'real' along the real axis only."""
     mus = as_fractions(mus)
     K = len(mus)
     domain = models[0].domain
     if any(m.domain != domain for m in models):
         raise ValueError("models in one batch must share their domain")
+    if path not in ("auto", "real"):
+        raise ValueError(f"path must be 'auto' or 'real', got {path!r}")
     width = max(len(m.coef) for m in models)
     rows = [list(m.coef) + [0.0] * (width - len(m.coef)) for m in models]
     check_rows = len(models) if check_rows is None else check_rows
     var, pmax = _model_profile(models[0].coef, domain)
+    if path == "auto":
+        shifted, planned = _shifted(models, rows, domain, mus, digits, var, check_rows,
+                                    gradient, certify)
+        if shifted is not None:
+            return shifted
+    else:
+        planned = None
     half = 0.5 * (domain[1] - domain[0])
     degree = max(len(c) for c in rows) - 1
-    depths = [float(m) ** 2 * var / (2 * math.log(10)) for m in mus]
+    # the cancellation depth: from the path plan where one was made (it sees
+    # several peaks), else the Gaussian estimate from the variance
+    depths = planned or [float(m) ** 2 * var / (2 * math.log(10)) for m in mus]
     # starting node count from the Gauss-Legendre error bound on the
     # Bernstein ellipse (Trefethen, ATAP ch. 19) for exp(p) exp(i omega x)
     # with p near a Gaussian of width sigma_x in window units: the error
@@ -296,6 +349,7 @@ def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
         chebyshev_matrix(n, max(precs), max(degree, max(grad_ks, default=0)))
         gauss_legendre(_on_ladder(1.5 * n), max(precs))
 
+        progress.report("integrating", detail=f"{K} mu, {n} nodes, {max(precs)} bits")
         todo = [c for c in range(len(chunks))
                 if results[c] is None or results[c][0] != (n, precs[c])]
         if todo:
@@ -364,6 +418,7 @@ def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
     prec = max(precs)
     grad = (grad_rows, grad0) if grad_ks else None
     if certify:
+        from signfree.engine.certification import certified as _certified
         cert, cert_quad, cert_ok = _certified(models[:check_rows], mus, digits, values, prec)
         values = cert + values[check_rows:]
         quad = cert_quad + quad[check_rows:]
@@ -371,6 +426,10 @@ def chebyshev_transform(models, mus, digits=12, certify=False, check_rows=None,
         method = "acb.integral"
     else:
         method = "gauss-legendre"
+    # on the real axis every term is at most Z(0): the sum cancels over at most the depth
+    orders = [float(-mpmath.log10(abs_mid(z))) if abs_mid(z) > 0 else math.inf
+              for z in values[0]]
     return Transform(values=values, quad_err=quad, log_z0=log_z0, resolved=resolved,
-                     prec=prec, nodes=n, method=method, mus=mus, gradient=grad)
+                     prec=prec, nodes=n, method=method, mus=mus, gradient=grad,
+                     heights=[0.0] * K, path_orders=orders)
 

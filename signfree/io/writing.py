@@ -1,22 +1,34 @@
 """Writing a run's files: results.csv (one row per mu), summary.json
-(provenance and how the model was chosen). Every file is written to a
-temporary name in the target folder and renamed into place, so a reader
-never sees a half-written file; a new folder is assembled under a temporary
-name and renamed as a whole."""
+(provenance and how the model was chosen), figures, the report page.
+
+Rules: nothing is written until everything has been computed; a new folder
+is assembled under a temporary name and renamed into place as a whole; an
+existing folder is written into only when it is empty or when the caller
+says ``force`` (then every file goes to a temporary name first and all are
+renamed at once, with Ctrl-C held back during the renames); files get the
+ordinary permissions of the user's umask (never 0600)."""
 import csv
 import hashlib
 import io
 import json
 import os
+import shutil
+import signal
 import sys
 import tempfile
+import threading
 import time
+from contextlib import contextmanager
 from pathlib import Path
+
+from signfree.errors import OutputError
 
 
 def file_sha256(path):
+    """The sha256 of an input's file (for ``data.h5:/run/q``, of data.h5)."""
+    from signfree.io.tables import file_of
     h = hashlib.sha256()
-    with open(path, "rb") as f:
+    with open(file_of(path), "rb") as f:
         for block in iter(lambda: f.read(1 << 16), b""):
             h.update(block)
     return h.hexdigest()
@@ -57,50 +69,139 @@ def _jsonable(x):
 
 
 def new_folder_name(prefix="signfree-run"):
+    """A folder name ``prefix-YYYYmmdd-HHMMSS`` (with ``-2``, ``-3``, ... when
+    taken) in the current folder."""
     stamp = time.strftime("%Y%m%d-%H%M%S")
     name = f"{prefix}-{stamp}"
     k = 1
-    while os.path.exists(name):
+    while os.path.lexists(name):
         k += 1
         name = f"{prefix}-{stamp}-{k}"
     return Path(name)
 
 
-def write_files(folder, files):
-    """Write ``files`` (name -> text or bytes) into ``folder`` atomically:
-    into an existing folder file by file (temporary name, then rename), or
-    as a whole new folder renamed into place."""
+def check_output_folder(folder, force=False):
+    """Raise :class:`OutputError` unless ``folder`` can receive a run's files:
+    it does not exist yet, or it is an empty folder, or it is a folder and
+    ``force`` is set. Called before any computation, and again when writing."""
     folder = Path(folder)
-    if folder.exists():
-        if not folder.is_dir():
-            raise NotADirectoryError(f"{folder} exists and is not a folder")
-        for name, data in files.items():
-            _write_atomic(folder / name, data)
+    if not os.path.lexists(folder):
+        parent = folder.absolute().parent
+        while not parent.exists():
+            parent = parent.parent
+        if not parent.is_dir() or not os.access(parent, os.W_OK | os.X_OK):
+            raise OutputError(folder, f"cannot create the output folder: {parent} is not a "
+                              "writable folder")
         return folder
-    parent = folder.resolve().parent
+    if not folder.is_dir():
+        raise OutputError(folder, "exists and is not a folder; choose another --out")
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise OutputError(folder, "the output folder is not writable")
+    if not force and any(True for _ in folder.iterdir()):
+        raise OutputError(folder, "the output folder exists and is not empty; choose "
+                          "another --out, or add --force to replace files of the same names")
+    return folder
+
+
+def _mode(kind):
+    """Ordinary permissions under the current umask: 0666 & ~umask for
+    files, 0777 & ~umask for folders."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return (0o777 if kind == "folder" else 0o666) & ~mask
+
+
+@contextmanager
+def _interrupts_held():
+    """Hold SIGINT back while a few renames complete, then deliver it (only
+    in the main thread; elsewhere the renames are simply done)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    caught = []
+    old = signal.signal(signal.SIGINT, lambda *a: caught.append(a))
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, old)
+        if caught:
+            raise KeyboardInterrupt
+
+
+def _write(path, data):
+    with open(path, "wb" if isinstance(data, (bytes, bytearray)) else "w",
+              encoding=None if isinstance(data, (bytes, bytearray)) else "utf-8") as f:
+        f.write(data)
+
+
+def write_files(folder, files, force=False):
+    """Write ``files`` (relative name -> text or bytes; a name may hold
+    subfolders, 'a/results.csv') into ``folder``, all or nothing.
+
+    A new folder is filled under a temporary name beside it and renamed into
+    place. An existing folder must be empty unless ``force``; every file is
+    then written to a temporary name next to its target and all are renamed
+    at once. Raises :class:`OutputError` when the folder cannot take the
+    files; nothing is left behind."""
+    folder = Path(folder)
+    check_output_folder(folder, force)
+    try:
+        if not os.path.lexists(folder):
+            return _write_new(folder, files)
+        return _write_into(folder, files)
+    except OSError as exc:
+        raise OutputError(folder, f"cannot write: {exc.strerror or exc}") from None
+
+
+def _write_new(folder, files):
+    parent = folder.absolute().parent
     parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{folder.name}.", dir=parent))
     try:
         for name, data in files.items():
-            mode = "wb" if isinstance(data, bytes) else "w"
-            with open(tmp / name, mode) as f:
-                f.write(data)
-        os.chmod(tmp, 0o755)
-        os.rename(tmp, folder)
+            path = tmp / name
+            if path.parent != tmp:
+                path.parent.mkdir(parents=True, exist_ok=True)
+            _write(path, data)
+        os.chmod(tmp, _mode("folder"))
+        with _interrupts_held():
+            os.rename(tmp, folder)
     except BaseException:
-        for p in tmp.glob("*"):
-            p.unlink()
-        tmp.rmdir()
+        shutil.rmtree(tmp, ignore_errors=True)
         raise
     return folder
 
 
-def _write_atomic(path, data):
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+def _write_into(folder, files):
+    targets = [folder / name for name in files]
+    for path in targets:
+        if path.is_dir():
+            raise OutputError(path, "is a folder; cannot write a file there")
+    staged, made = [], []
+    mode = _mode("file")
     try:
-        with os.fdopen(fd, "wb" if isinstance(data, bytes) else "w") as f:
-            f.write(data)
-        os.replace(tmp, path)
+        for path, data in zip(targets, files.values()):
+            missing = [p for p in [path.parent, *path.parent.parents]
+                       if p != folder and folder in p.parents and not p.exists()]
+            for p in reversed(missing):
+                p.mkdir()
+                made.append(p)
+            fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+            os.close(fd)
+            staged.append((tmp, path))
+            _write(tmp, data)
+            os.chmod(tmp, mode)
+        with _interrupts_held():
+            for tmp, path in staged:
+                os.replace(tmp, path)
     except BaseException:
-        os.unlink(tmp)
+        for tmp, _ in staged:
+            if os.path.lexists(tmp):
+                os.unlink(tmp)
+        for p in reversed(made):
+            try:
+                p.rmdir()
+            except OSError:
+                pass
         raise
+    return folder

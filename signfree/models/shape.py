@@ -56,9 +56,16 @@ def _second_differences(t, p):
 def spurious_weight(density, model, tolerance=ENVELOPE_TOLERANCE):
     """Fraction of the model's weight exp(ln rho) that lies above the
     interpolation envelope of its values at the anchors (module docstring),
-    and the largest excess of ln rho over that envelope in nats."""
+    and the largest excess of ln rho over that envelope in nats. Where the
+    domain reaches beyond the outermost data point (half a bin of a
+    histogram), the envelope there continues the line through the two
+    outermost points instead of the model's own value."""
     t = anchors(density)
-    p_t = model.log_density(t)
+    p_t = np.asarray(model.log_density(t), dtype=float)
+    if density.kind == "histogram" and len(t) >= 4:
+        for end, a, b in ((0, 1, 2), (-1, -2, -3)):
+            slope = (p_t[a] - p_t[b]) / (t[a] - t[b])
+            p_t[end] = min(p_t[end], p_t[a] + slope * (t[end] - t[a]))
     d2 = _second_differences(t, p_t)
     curv = np.minimum(d2[:-1], d2[1:])
     h = np.diff(t)

@@ -37,7 +37,7 @@ import numpy as np
 from signfree.report.routes import compare_figure, zeros_figure
 from signfree.report.style import (GREY, PNG_DPI, STATUS_MARKS, STYLE, _C,
                                    _log10_abs, _new_figure, _outside_legend,
-                                   _reference_points, horizon)
+                                   _reference_points, field_symbol, horizon)
 
 
 # ---------------------------------------------------------------------------
@@ -74,14 +74,39 @@ def _chi2_text(model, table):
     return "" if value is None else r"$\chi^2/\mathrm{dof}$ = %.3g" % value
 
 
+def _drawn_model(analysis):
+    """(model, label) drawn over the data: the analysis's own model, or for
+    a cumulant series (which has no ln rho on the data range) the Chebyshev
+    fit whose zeros set the series' radius of convergence."""
+    model, table = analysis.model, analysis.table
+    label = str(getattr(model, "label", None) or table.info.get("model", "model"))
+    if getattr(model, "domain", None) is None and analysis.fit is not None:
+        fitted = analysis.fit.model
+        return fitted, f"{fitted.label} (radius of {label})"
+    return model, label
+
+
+def _model_slopes(ax, model, qq, label):
+    """d ln rho/dq of the model: one horizontal segment per linear piece for
+    the piecewise reconstruction (its derivative is constant on each piece),
+    a curve otherwise."""
+    knots = getattr(model, "knots", None)
+    if knots is None:
+        ax.plot(qq, model.derivative(qq), color=_C["orange"], label=label, zorder=3)
+        return
+    slopes = np.diff(model.values) / np.diff(knots)
+    ax.hlines(slopes, knots[:-1], knots[1:], color=_C["orange"], lw=1.0, zorder=3,
+              label=label)
+
+
 def fit_figure(analysis):
     """The data with the model and the normalised residuals, sharing q.
     ln rho is drawn with its maximum on the data range set to 0 (it is
     known only up to a constant)."""
-    density, model, table = analysis.density, analysis.model, analysis.table
+    density, table = analysis.density, analysis.table
+    model, label = _drawn_model(analysis)
     a, b = model.domain
     qq = np.linspace(a, b, 801)
-    label = str(getattr(model, "label", None) or table.info.get("model", "model"))
     dof = getattr(model, "dof", 0) or 0
     top = float(np.max(model.log_density(qq)))
     legend = {"title": _chi2_text(model, table) or None, "loc": "best"}
@@ -97,7 +122,7 @@ def fit_figure(analysis):
         fitted = (model.log_density(q + w / 2) - model.log_density(q - w / 2)) / w
         ax_s.errorbar(q, y, yerr=e, fmt="o", ms=2, elinewidth=0.6, color=_C["blue"],
                       label="measured", gid="data", zorder=2)
-        ax_s.plot(qq, model.derivative(qq), color=_C["orange"], label=label, zorder=3)
+        _model_slopes(ax_s, model, qq, label)
         ax_s.set_ylabel(r"$d\ln\rho/dq$")
         ax_s.legend(**legend)
         knots, lnrho, _ = slope_knots(q, w, y)
@@ -159,8 +184,11 @@ def _phase_data(table):
             np.array(lo))
 
 
-def phase_figure(table, reference=None):
-    """log10 |Z(mu)/Z(0)| with its error band and the non-ok statuses."""
+def phase_figure(table, reference=None, field="mu"):
+    """log10 |Z(mu)/Z(0)| with its error band and the non-ok statuses; rows
+    without a supported digit are drawn as upper bounds (arrows down from
+    log10(|value| + total error))."""
+    sym = field_symbol(field)
     fig = _new_figure(3.0)
     ax = fig.subplots()
     mu, y, supported, hi, lo = _phase_data(table)
@@ -178,33 +206,50 @@ def phase_figure(table, reference=None):
         bottom = min(bottom, max(min(ref_low), deepest))
         top = max(top, max(ref_low))
     floor = bottom - max(1.0, 0.06 * (top - bottom))
+    ceiling = top + max(0.5, 0.04 * (top - bottom))
     band_lo = np.where(np.isfinite(lo), np.maximum(lo, floor), floor)
     band_hi = np.where(np.isfinite(hi), hi, floor)
     visible = bool(mu.size) and float(np.max(band_hi - band_lo)) > 0.005 * (top - floor)
-    ax.fill_between(mu, band_lo, band_hi, color=_C["sky_blue"], alpha=0.35, lw=0,
-                    label="± total error" if visible else None, zorder=1)
+    if mu.size > 2:
+        ax.fill_between(mu, band_lo, band_hi, color=_C["sky_blue"], alpha=0.35, lw=0,
+                        label="± total error" if visible else None, zorder=1)
+    elif mu.size:
+        # one or two mu: a band has no width, so the error is a bar
+        pick = supported
+        ax.errorbar(mu[pick], y[pick], yerr=[y[pick] - band_lo[pick], band_hi[pick] - y[pick]],
+                    fmt="none", ecolor=_C["blue"], elinewidth=0.8, capsize=2.5, zorder=2,
+                    label="± total error" if pick.any() else None, gid="error_bar")
     for k, (a, b) in enumerate(table.sign_changes()):
         ax.axvspan(a, b, color=_C["green"], alpha=0.22, lw=0, zorder=0,
                    label="sign change" if k == 0 else None)
     line = np.where(supported, y, np.nan)
-    ax.plot(mu, line, "-o", ms=1.8, color=_C["blue"], label=r"$|Z(\mu)/Z(0)|$", gid="value",
-            zorder=3)
+    ax.plot(mu, line, "-o", ms=1.8, color=_C["blue"], label=r"$|Z(%s)/Z(0)|$" % sym,
+            gid="value", zorder=3)
     if ref:
         ax.plot([m for m, _ in ref], [v for _, v in ref], "--", color=_C["orange"], lw=1.0,
                 label="reference", gid="reference", zorder=4)
-    _status_marks(ax, mu, y, status, supported, "open: no digit, upper bound")
-    ax.set_xlabel(r"$\mu$")
-    ax.set_ylabel(r"$\log_{10}|Z(\mu)/Z(0)|$")
-    ax.set_ylim(floor, top + max(0.5, 0.04 * (top - bottom)))
-    if mu.size > 1:
-        ax.set_xlim(mu.min(), mu.max())
+    _status_marks(ax, mu, y, status, supported, -0.08 * (ceiling - floor),
+                  "no digit: upper bound")
+    ax.set_xlabel(r"$%s$" % sym)
+    ax.set_ylabel(r"$\log_{10}|Z(%s)/Z(0)|$" % sym)
+    ax.set_ylim(floor, ceiling)
+    _set_xlim(ax, mu)
     _outside_legend(fig, ax)
     return fig
 
 
-def _status_marks(ax, x, y, status, supported, bound_label):
-    """Marks for the non-ok rows (filled: digits supported; open: drawn at
-    the bound), and one legend entry explaining the open marks."""
+def _set_xlim(ax, mu):
+    """The scan's range, or a unit-wide window around a single mu."""
+    if mu.size > 1 and mu.max() > mu.min():
+        ax.set_xlim(mu.min(), mu.max())
+    elif mu.size:
+        ax.set_xlim(mu[0] - 0.5, mu[0] + 0.5)
+
+
+def _status_marks(ax, x, y, status, supported, arrow, bound_label):
+    """Marks for the non-ok rows: filled where digits are supported; open,
+    with an arrow of length ``arrow`` (data units, negative: pointing down)
+    where the row is only a bound; and one legend entry for the arrows."""
     any_bound = False
     for s, style in STATUS_MARKS.items():
         for sup in (True, False):
@@ -217,64 +262,77 @@ def _status_marks(ax, x, y, status, supported, bound_label):
             ax.plot(x[pick], y[pick], ls="none", ms=4, mew=0.8, label=label,
                     mfc=style["color"] if sup else "white",
                     gid=f"status:{s}" + ("" if sup else ":bound"), zorder=5, **style)
+            if not sup:
+                size = [[-arrow if arrow < 0 else 0] * len(pick),
+                        [arrow if arrow > 0 else 0] * len(pick)]
+                ax.errorbar(x[pick], y[pick], yerr=size, fmt="none", ecolor=style["color"],
+                            elinewidth=0.8, uplims=arrow < 0, lolims=arrow > 0, zorder=4,
+                            gid=f"arrows:{s}")
     if any_bound:
-        ax.plot([], [], ls="none", marker="o", ms=4, mew=0.8, color=GREY, mfc="white",
-                label=bound_label)
+        glyph = r"$\downarrow$" if arrow < 0 else r"$\uparrow$"
+        ax.plot([], [], ls="none", marker=glyph, ms=7, color=GREY, label=bound_label)
 
 
-def depth_figure(table):
+def depth_figure(table, field="mu"):
     """D(mu) = -log10 |Z(mu)/Z(0)| beside -log10(total error), with the
-    horizon."""
+    horizon; rows without a supported digit are lower bounds (arrows up).
+    The error line leaves out mu = 0, where Z(0)/Z(0) = 1 holds by
+    definition and the error is only the tiny edge term."""
+    sym = field_symbol(field)
     fig = _new_figure(2.9)
     ax = fig.subplots()
     mu = np.array([float(r.mu) for r in table.rows])
-    depth = np.array([r.cancel_orders for r in table.rows])
+    depth = np.array([np.nan if r.cancel_orders is None else r.cancel_orders for r in table.rows])
     status = [r.status for r in table.rows]
     supported = np.array([_supported(r) for r in table.rows], dtype=bool)
-    err_depth = np.array([-_log10_abs(r.total_err) if r.total_err > 0 else math.nan
-                          for r in table.rows])
+    err_depth = np.array([-_log10_abs(r.total_err) if r.total_err > 0 and r.mu != 0
+                          else math.nan for r in table.rows])
+    finite = [v for v in list(depth) + list(err_depth) if math.isfinite(v)]
+    lo, hi = (min(finite), max(finite)) if finite else (0.0, 1.0)
+    ylim = (min(0.0, lo) - 0.03 * (hi - lo + 1), hi + 0.16 * (hi - lo + 1))
     line = np.where(supported, depth, np.nan)
-    ax.plot(mu, line, "-o", ms=1.8, color=_C["blue"], label=r"$D(\mu)$", gid="depth", zorder=3)
-    ax.plot(mu, err_depth, "--", color=_C["orange"], label=r"$-\log_{10}$(total error)",
-            gid="error_depth", zorder=2)
-    _status_marks(ax, mu, depth, status, supported, "open: no digit, lower bound")
+    ax.plot(mu, line, "-o", ms=1.8, color=_C["blue"], label=r"$D(%s)$" % sym, gid="depth",
+            zorder=3)
+    ax.plot(mu, err_depth, "--" if mu.size > 2 else "_", ms=8, color=_C["orange"],
+            label=r"$-\log_{10}$(total error)", gid="error_depth", zorder=2)
+    _status_marks(ax, mu, depth, status, supported, 0.08 * (ylim[1] - ylim[0]),
+                  "no digit: lower bound")
     h = horizon(table)
     if h is not None:
         hmu, hdepth, kind = h
         hinfo = table.info.get("horizon") if table.info else None
         if isinstance(hinfo, dict) and hinfo.get("reason") == "end of scan":
-            text = r"signal to the end of the scan"
+            text = r"horizon: end of scan"
         else:
-            text = r"%s $\mu$ = %.4g" % (kind, hmu)
+            text = r"%s $%s$ = %.4g" % (kind, sym, hmu)
         if hdepth is not None:
             text += ", $D$ = %.3g" % hdepth
         ax.axvline(hmu, color=_C["black"], ls=":", lw=0.9, label=text, gid="horizon")
-    ax.set_xlabel(r"$\mu$")
-    ax.set_ylabel(r"$D(\mu)=-\log_{10}|Z(\mu)/Z(0)|$")
-    finite = [v for v in list(depth) + list(err_depth) if math.isfinite(v)]
-    if finite:
-        lo, hi = min(finite), max(finite)
-        ax.set_ylim(min(0.0, lo) - 0.03 * (hi - lo + 1), hi + 0.06 * (hi - lo + 1))
-    if mu.size > 1:
-        ax.set_xlim(mu.min(), mu.max())
+    ax.set_xlabel(r"$%s$" % sym)
+    ax.set_ylabel(r"$D(%s)=-\log_{10}|Z(%s)/Z(0)|$" % (sym, sym))
+    ax.set_ylim(*ylim)
+    _set_xlim(ax, mu)
     _outside_legend(fig, ax)
     return fig
 
 
-def make_figures(analysis, reference=None, comparison=None, zeros=None):
+def make_figures(analysis, reference=None, comparison=None, zeros=None, field="mu"):
     """{name: matplotlib Figure} for 'fit', 'phase', 'depth', and 'compare'
     and 'zeros' when those results are given. ``reference``: {Fraction(mu):
-    mpf} or a list of (mu, value) to draw beside |Z(mu)/Z(0)|."""
+    mpf} or a list of (mu, value) to draw beside |Z(mu)/Z(0)|. ``field``:
+    'mu' or 'theta', the symbol on the axes."""
+    field_symbol(field)
     with matplotlib.rc_context(STYLE):
         figures = {
             "fit": fit_figure(analysis),
-            "phase": phase_figure(analysis.table, reference),
-            "depth": depth_figure(analysis.table),
+            "phase": phase_figure(analysis.table, reference, field=field),
+            "depth": depth_figure(analysis.table, field=field),
         }
         if comparison is not None:
-            figures["compare"] = compare_figure(comparison, analysis.table.info.get("model"))
+            figures["compare"] = compare_figure(comparison, analysis.table.info.get("model"),
+                                                field=field)
         if zeros is not None:
-            figures["zeros"] = zeros_figure(zeros)
+            figures["zeros"] = zeros_figure(zeros, field=field)
     return figures
 
 
@@ -311,7 +369,21 @@ def write_figures(figures, folder=None):
     return files
 
 
-def figures_files(analysis, reference=None):
+def figures_files(analysis, reference=None, field="mu"):
     """The figure files of one run (for ``signfree run --plots``): name ->
     bytes, to be merged into the files given to write_files."""
-    return write_figures(make_figures(analysis, reference))
+    return write_figures(make_figures(analysis, reference, field=field))
+
+
+def compare_figures(comparison, field="mu"):
+    """{'compare': Figure} of a :class:`signfree.analysis.compare.Comparison`
+    (for ``signfree compare``)."""
+    with matplotlib.rc_context(STYLE):
+        return {"compare": compare_figure(comparison, field=field)}
+
+
+def zeros_figures(zeros, field="mu"):
+    """{'zeros': Figure} of a :class:`signfree.analysis.zeros.ZeroResult`
+    (for ``signfree zeros``)."""
+    with matplotlib.rc_context(STYLE):
+        return {"zeros": zeros_figure(zeros, field=field)}

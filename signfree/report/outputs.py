@@ -9,7 +9,6 @@ from datetime import datetime, timezone
 import numpy as np
 
 from signfree.analysis.analyse import analyse
-from signfree.analysis.results import ResultTable
 from signfree.analysis.settings import parse_mu_spec
 from signfree.io.samples import binned_error, load
 from signfree.io.writing import csv_text, file_sha256, json_text, package_versions
@@ -19,11 +18,12 @@ def analyse_file(input_path, mu_spec, settings, kind=None, volume=None, symmetry
     """Read one input file, analyse it with ``settings`` over the mu of
     ``mu_spec`` and prepare its files; returns (Analysis, {name: text}).
     Raises InputError or ValueError on bad input before anything is written."""
-    mus = parse_mu_spec(mu_spec)
+    mus = parse_mu_spec(mu_spec, allow_complex=True)
     start = time.perf_counter()
     density, samples, sample_notes = load(input_path, kind=kind, volume=volume,
                                           symmetry=symmetry)
     result = analyse(density, mus, settings, samples=samples)
+    result.samples = samples
     result.table.info["notes"][:0] = list(sample_notes)
     if samples is not None:
         err, tau, n_eff = binned_error(samples.q, samples.weights)
@@ -50,8 +50,12 @@ def analyse_file(input_path, mu_spec, settings, kind=None, volume=None, symmetry
         "run_seconds": round(time.perf_counter() - start, 3),
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
     }
-    files = {"results.csv": csv_text(ResultTable.COLUMNS, table.records()),
+    files = {"results.csv": csv_text(table.columns(),
+                                     table.records(guard=table.GUARD_DIGITS)),
              "summary.json": json_text(summary)}
+    check = getattr(result.observables, "check", None)
+    if check is not None:
+        files["imaginary_check.csv"] = csv_text(check.COLUMNS, check.records())
     return result, files
 
 
@@ -63,10 +67,16 @@ def print_report(result, folder, reference=None, out=sys.stdout):
     fit = ""
     if info.get("chi2_per_dof") is not None:
         fit = f", chi2/dof = {info['chi2_per_dof']:.3g} ({info['degree_criterion']})"
-    print(f"{result.density.source}: {result.density.kind}, {result.density.n_points} points; "
+    print(f"{result.density.source}: {input_text(result)}; "
           f"model {info['model']} parity {info['parity']}{fit}", file=out)
-    print(f"integration: {info['integration']}, {info['precision_digits']} digits working "
-          f"precision, {info['nodes']} nodes, {result.seconds:.2f} s", file=out)
+    if "lattice" in info:
+        lat = info["lattice"]
+        print(f"sum: exact over {lat['points']} lattice points of step {lat['step']} (period "
+              f"{lat['period']}), {info['precision_digits']} digits working precision, "
+              f"{result.seconds:.2f} s; route {info['route']}: {info['route_reason']}", file=out)
+    else:
+        print(f"integration: {info['integration']}, {info['precision_digits']} digits working "
+              f"precision, {info['nodes']} nodes, {result.seconds:.2f} s", file=out)
     if info.get("misfit"):
         print(f"MISFIT: {info['misfit']}", file=out)
     choice = info.get("model_choice") or {}
@@ -79,8 +89,36 @@ def print_report(result, folder, reference=None, out=sys.stdout):
     print(f"statuses: {counts}; statistical errors: {info['statistical_errors']}", file=out)
     phase = " [two-phase data]" if (info.get("two_phase") or {}).get("detected") else ""
     print(horizon_line(info["horizon"]) + phase, file=out)
+    if info.get("theta"):
+        from signfree.analysis.theta import theta_line
+        print(theta_line(info["theta"]), file=out)
+    if result.observables is not None:
+        print(observables_text(result.observables), file=out)
     if folder is not None:
         print(f"wrote {folder / 'results.csv'} and {folder / 'summary.json'}", file=out)
+
+
+def observables_text(obs):
+    """The observables at real mu, the rows off the real axis and the
+    imaginary-mu check, as printed after the table."""
+    parts = []
+    if obs.real is not None:
+        parts.append("observables (value ±total error [status]):\n" + obs.real.text())
+    if obs.complex is not None:
+        parts.append("imaginary and complex mu:\n" + obs.complex.text())
+    if obs.check is not None:
+        parts.append(obs.check.line())
+    return "\n".join(parts)
+
+
+def input_text(result):
+    """What was read, in a few words: 'slopes, 96 points', or for raw
+    samples 'samples, 100000 values binned into 59 bins'."""
+    density, samples = result.density, getattr(result, "samples", None)
+    if samples is not None:
+        return (f"samples, {len(samples.q)} values binned into {density.n_points} "
+                f"{density.metadata.get('binning', '')} bins").replace("  ", " ")
+    return f"{density.kind}, {density.n_points} points"
 
 
 def horizon_line(h):

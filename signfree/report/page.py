@@ -13,6 +13,8 @@ from pathlib import Path
 import mpmath
 
 from signfree.report.figures import _png, figure_name, make_figures, write_figures
+from signfree.report.observables import CAPTIONS as OBSERVABLE_CAPTIONS
+from signfree.report.observables import observable_figures, observables_section
 from signfree.report.routes import comparison_deviations
 from signfree.report.style import horizon_text
 
@@ -58,7 +60,8 @@ ERROR_TEXT = [
     ("delta_f", "The free-energy density difference -ln|Z(mu)/Z(0)| / V (needs a volume), "
      "with its statistical error delta_f_err."),
     ("naive_samples", "The number of phase-quenched samples direct reweighting would need "
-     "for the same relative error, about 1 / (r^2 |Z(mu)/Z(0)|^2) for relative error r."),
+     "for the same error: (1 - |Z(mu)/Z(0)|^2) / (r^2 |Z(mu)/Z(0)|^2) for relative error r "
+     "(the phase has variance 1 - |Z/Z0|^2), at least 1."),
     ("horizon", "The largest mu of the scan up to which every value is resolved and stays "
      "at least two total errors away from zero, with the error source that ends it."),
 ]
@@ -70,7 +73,9 @@ ERROR_TEXT = [
 CSS = """
 body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; color: #1a1a1a;
        margin: 0; background: #fafafa; line-height: 1.45; font-size: 15px; }
-main { max-width: 1100px; margin: 0 auto; padding: 1.5em 2em 3em; background: #fff; }
+main { max-width: 1100px; margin: 0 auto; padding: 1.5em 2em 3em; background: #fff;
+       box-sizing: border-box; }
+section { min-width: 0; }
 h1 { font-size: 1.5em; margin-bottom: 0.2em; }
 h2 { font-size: 1.2em; border-bottom: 1px solid #ddd; padding-bottom: 0.2em; margin-top: 2em; }
 p.lead { color: #444; margin-top: 0; }
@@ -81,12 +86,14 @@ dl.terms dt { font-weight: 600; font-family: ui-monospace, monospace; margin-top
 dl.terms dd { margin-left: 1.5em; }
 .figures { display: flex; flex-wrap: wrap; gap: 1.5em; }
 figure { margin: 0; max-width: 100%; }
-figure img { width: 510px; max-width: 100%; height: auto; border: 1px solid #eee; }
-figcaption { font-size: 0.9em; color: #444; max-width: 510px; }
-.scroll { overflow-x: auto; }
-table { border-collapse: collapse; font-size: 0.85em; }
-th, td { padding: 0.2em 0.6em; border-bottom: 1px solid #e4e4e4; text-align: right;
+figure img { width: 490px; max-width: 100%; height: auto; border: 1px solid #eee; }
+figcaption { font-size: 0.9em; color: #444; max-width: 490px; }
+.scroll { overflow-x: auto; max-width: 100%; }
+#results .scroll { max-height: 32em; overflow-y: auto; }
+table { border-collapse: collapse; font-size: 0.8em; }
+th, td { padding: 0.2em 0.45em; border-bottom: 1px solid #e4e4e4; text-align: right;
          white-space: nowrap; }
+th { white-space: normal; vertical-align: bottom; }
 th { background: #f0f0f0; position: sticky; top: 0; }
 td.text, th.text { text-align: left; white-space: normal; }
 td.num { font-family: ui-monospace, "DejaVu Sans Mono", monospace; }
@@ -105,22 +112,25 @@ FIGURE_CAPTIONS = {
            "units of the errors (the band marks one error).",
     "phase": "log10 |Z(mu)/Z(0)| with the band value ± total error (clipped at the bottom of "
              "the axes where the error reaches the value). Squares: edge_limited; diamonds: "
-             "noise_limited; crosses: unresolved; open symbols: not one digit supported, "
-             "drawn at the upper bound |value| + total error. Shaded columns bracket sign "
-             "changes of Z(mu).",
+             "noise_limited; crosses: unresolved; open symbols with an arrow down: not one digit "
+             "supported, drawn at the upper bound |value| + total error. Shaded columns "
+             "bracket sign changes of Z(mu).",
     "depth": "The cancellation depth D(mu) = -log10 |Z(mu)/Z(0)| against -log10 of the total "
-             "error: where D exceeds it, not one digit of the value is supported (open "
-             "symbols, drawn at the lower bound -log10(|value| + total error)). The dotted "
-             "line marks the horizon.",
-    "compare": "log10 |Z(mu)/Z(0)| of every model compared (filled: ok; open: edge or noise "
-               "limited; open triangles: upper bounds where not one digit is supported). The "
-               "legend gives the "
-               "largest deviation from the chosen model in units of the combined error "
-               "(avg_phase_err and model_err of both models, and at least half a unit in the "
-               "last printed digit) over the rows where both have digits.",
-    "zeros": "Zeros of Z(mu) in the complex mu plane with their errors, the searched box and "
-             "the circle out to which the cumulant series of ln Z converges (the distance to "
-             "the nearest zero). Real zeros are sign changes of the phase factor.",
+             "error (not drawn at mu = 0, where Z(0)/Z(0) = 1 by definition): where D exceeds "
+             "it, not one digit of the value is supported (open symbols with an arrow up, "
+             "drawn at the lower bound -log10(|value| + total error)). The dotted line marks "
+             "the horizon.",
+    "compare": "Upper panel: log10 |Z(mu)/Z(0)| of every route compared (filled: ok; open: "
+               "edge or noise limited; open triangles: upper bounds where not one digit is "
+               "supported). Lower panel: each route minus the chosen model in units of their "
+               "combined error (the sum of both total errors, at least half a unit in the "
+               "last printed digit), where both have digits; the shaded band |deviation| <= 1 "
+               "is agreement. The legend gives each route's largest |deviation|.",
+    "zeros": "Zeros of Z(mu) in the complex mu plane with their error discs, the searched "
+             "box, the real axis and the disc in which the cumulant series of ln Z converges "
+             "(out to the nearest zero). Open symbols with a dashed disc: zeros that the ends "
+             "of the data range could move by that much, possibly artefacts of the range. "
+             "Real zeros are sign changes of the phase factor.",
 }
 
 
@@ -131,6 +141,8 @@ def _e(x):
 def _fmt(x):
     if x is None:
         return ""
+    if isinstance(x, bool):
+        return "yes" if x else "no"
     if isinstance(x, float):
         return f"{x:.6g}"
     if isinstance(x, (list, tuple)):
@@ -138,6 +150,18 @@ def _fmt(x):
     if isinstance(x, dict):
         return "; ".join(f"{k}: {_fmt(v)}" for k, v in x.items())
     return str(x)
+
+
+def parity_test_text(test):
+    """The parity test of the fit in words, or None when none was made."""
+    if not test:
+        return None
+    text = (f"{test.get('result', '?')}: {test.get('test', 'test')} at degree "
+            f"{test.get('degree', '?')}")
+    if test.get("delta_chi2") is not None:
+        text += (f", delta chi2 = {test['delta_chi2']:.3g} for {test.get('delta_m', '?')} "
+                 f"odd coefficients, p = {test.get('p', float('nan')):.3g}")
+    return text
 
 
 def _kv(pairs):
@@ -156,15 +180,15 @@ def _lead_columns(columns, first=("model", "mu", "status")):
     return lead + [c for c in columns if c not in lead]
 
 
-def _table(columns, records, table_id, status_key="status"):
-    head = "".join(f'<th scope="col" class="{"text" if c in TEXT_COLUMNS else "num"}">'
-                   f'{_e(c)}</th>' for c in columns)
+def _table(columns, records, table_id, status_key="status", text_columns=TEXT_COLUMNS):
+    head = "".join(f'<th scope="col" class="{"text" if c in text_columns else "num"}">'
+                   f'{_e(c).replace("_", "_<wbr>")}</th>' for c in columns)
     body = []
     for rec in records:
         cells = []
         for c in columns:
             v = rec.get(c, "")
-            cls = "text" if c in TEXT_COLUMNS else "num"
+            cls = "text" if c in text_columns else "num"
             if v in ("", None):
                 cells.append(f'<td class="{cls} empty">&ndash;</td>')
             else:
@@ -294,7 +318,10 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
         f"<title>{_e(title)}</title>", f"<style>{CSS}</style>", "</head>", "<body>", "<main>",
         f"<h1>Z(&mu;)/Z(0) from {_e(source)}</h1>",
     ]
-    lead = (f"{density.kind} data, {density.n_points} points on q in "
+    samples = getattr(analysis, "samples", None)
+    what = (f"samples ({len(samples.q)} values binned into {density.n_points} bins)"
+            if samples is not None else f"{density.kind} data, {density.n_points} points")
+    lead = (f"{what} on q in "
             f"[{density.domain[0]:g}, {density.domain[1]:g}]; {len(mus)} values of mu"
             + (f" from {min(mus):g} to {max(mus):g}" if mus else "") + "; statuses: "
             + ", ".join(f"{v} {k}" for k, v in counts.items() if v) + ".")
@@ -313,7 +340,7 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
         ("degree criterion", info.get("degree_criterion")),
         ("fit consistent with the errors", info.get("fit_consistent")),
         ("errors estimated from residuals", info.get("errors_estimated_from_residuals")),
-        ("parity test", info.get("parity_test")),
+        ("parity test", parity_test_text(info.get("parity_test"))),
         ("model_err against", info.get("model_err_against")),
         ("statistical errors", info.get("statistical_errors")),
         ("bootstrap seed", info.get("bootstrap_seed")),
@@ -328,9 +355,9 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
 
     parts.append('<section id="figures"><h2>Figures</h2><div class="figures">')
     for name, fig in figures.items():
-        caption = FIGURE_CAPTIONS.get(name, name)
+        caption = FIGURE_CAPTIONS.get(name) or OBSERVABLE_CAPTIONS.get(name, name)
         parts.append(f'<figure id="fig-{_e(name)}"><img src="{_png_data_uri(fig)}" '
-                     f'alt="{_e(name)} figure" width="510">'
+                     f'alt="{_e(name)} figure" width="490">'
                      f"<figcaption><b>{_e(name)}.</b> {_e(caption)}</figcaption></figure>")
     parts.append("</div></section>")
 
@@ -342,11 +369,14 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
         i = columns.index("avg_phase") + 1 if "avg_phase" in columns else len(columns)
         columns.insert(i, "reference")
         records = [dict(rec, reference=refs.get(k, "")) for k, rec in enumerate(records)]
-    parts.append("<p>As in results.csv; a dash marks an empty entry (no supported digit, or "
-                 "an error that was not computed).</p>")
+    parts.append("<p>As in results.csv, with the values rounded to the digits their total "
+                 "error supports (results.csv keeps two guard digits more, for further fits); "
+                 "a dash marks an empty entry (no supported digit, or an error that was not "
+                 "computed).</p>")
     parts.append(_table(columns, records, "results-table"))
     parts.append("</section>")
 
+    parts.append(observables_section(analysis))
     if comparison is not None:
         parts.append(_comparison_section(comparison, info.get("model")))
     if zeros is not None:
@@ -382,14 +412,19 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
     return "\n".join(parts)
 
 
-def report_files(analysis, files, reference=None):
+def report_files(analysis, files, reference=None, comparison=None, zeros=None, field="mu"):
     """The files of ``signfree run`` (``files``: name -> text) plus the
-    figures and report.html."""
+    figures and report.html; ``comparison`` (a Comparison) and ``zeros`` (a
+    ZeroResult) add their sections and figures; ``field`` ('mu' or 'theta')
+    names the axes."""
     summary = json.loads(files["summary.json"]) if "summary.json" in files else {}
-    figures = make_figures(analysis, reference)
+    figures = make_figures(analysis, reference, comparison=comparison, zeros=zeros,
+                           field=field)
+    figures.update(observable_figures(analysis))
     figure_bytes = write_figures(figures)
     pngs = {name: figure_bytes[figure_name(name, "png")] for name in figures}
     out = dict(files)
     out.update(figure_bytes)
-    out["report.html"] = html_report(analysis, pngs, summary, reference=reference)
+    out["report.html"] = html_report(analysis, pngs, summary, comparison=comparison,
+                                     zeros=zeros, reference=reference)
     return out

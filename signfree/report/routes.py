@@ -7,9 +7,11 @@ import math
 import mpmath
 import numpy as np
 from matplotlib.lines import Line2D
-from matplotlib.patches import Rectangle
+from matplotlib.patches import Circle, Ellipse, Rectangle
+from matplotlib.ticker import FuncFormatter, NullLocator
 
-from signfree.report.style import GREY, _C, _dec, _new_figure, _outside_legend, _to_float
+from signfree.report.style import (GREY, _C, _dec, _new_figure, _outside_legend, _to_float,
+                                   field_symbol)
 
 
 def _record_value(rec):
@@ -107,20 +109,22 @@ COMPARE_MARKERS = ["s", "D", "^", "p", "h", "*", "X", "P"]
 COMPARE_LINESTYLES = {"chebyshev": "-", "cumulant": "--", "piecewise": "-."}
 
 
-def compare_figure(comparison, chosen=None):
-    """log10 |Z(mu)/Z(0)| of every model on one panel (filled: ok; open:
-    edge or noise limited; open triangles: upper bounds where not one digit
-    is supported; rows beyond the convergence radius of a series are not
-    drawn), the
-    legend giving each model's largest deviation from the reference in
-    units of the combined error. The logarithm shows where the models part
-    and where each loses the signal over any number of decades; the
-    deviation says whether they agree where both have digits."""
+def compare_figure(comparison, chosen=None, field="mu"):
+    """Every route against the chosen model. Upper panel: log10 |Z(mu)/Z(0)|
+    of every model (filled: ok; open: edge or noise limited; open triangles:
+    upper bounds where not one digit is supported; rows beyond the
+    convergence radius of a series are not drawn). Lower panel: each
+    route's deviation from the reference in units of the combined error
+    (shaded: within +-1, agreement), where both have digits; the legend
+    gives each route's largest |deviation|. The logarithm shows where the
+    models part and where each loses the signal over any number of decades;
+    the deviation says whether they agree."""
     chosen, devs = comparison_deviations(comparison, chosen)
     models = _by_model(comparison)
     order = ([chosen] if chosen in models else []) + [m for m in models if m != chosen]
-    fig = _new_figure(2.4 + 0.075 * (len(order) + 3))
-    ax = fig.subplots()
+    sym = field_symbol(field)
+    fig = _new_figure(3.4 + 0.075 * (len(order) + 3))
+    ax, ax_dev = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [1.6, 1.0]})
     beyond = False
     handles, labels, shown, bounds = [], [], [], []
     for k, model in enumerate(order):
@@ -152,6 +156,15 @@ def compare_figure(comparison, chosen=None):
         shown += [v for v in line if math.isfinite(v)]
         bounds += [v for v in y[unresolved] if math.isfinite(v)]
         ax.plot(mu[ok], y[ok], ls="none", marker=marker, ms=2.6, color=colour, zorder=4)
+        if model in devs:
+            dmu, dv, dok = devs[model]
+            dv, dok = np.asarray(dv, dtype=float), np.asarray(dok, dtype=bool)
+            ax_dev.plot(dmu, dv, ls=ls, lw=0.8, color=colour, gid=f"deviation:{model}",
+                        zorder=3)
+            ax_dev.plot(np.asarray(dmu)[dok], dv[dok], ls="none", marker=marker, ms=2.6,
+                        color=colour, zorder=4)
+            ax_dev.plot(np.asarray(dmu)[~dok], dv[~dok], ls="none", marker=marker, ms=3,
+                        mfc="none", mew=0.7, color=colour, zorder=4)
         limited = resolved & ~ok
         if limited.any():
             ax.plot(mu[limited], y[limited], ls="none", marker=marker, ms=3, mfc="none",
@@ -172,12 +185,12 @@ def compare_figure(comparison, chosen=None):
         if lo <= r <= hi:
             handles.append(ax.axvline(r, color=GREY, ls=":", lw=0.9, gid="radius"))
             labels.append("convergence radius")
-    ax.set_xlabel(r"$\mu$")
-    ax.set_ylabel(r"$\log_{10}|Z(\mu)/Z(0)|$")
+    ax.set_ylabel(r"$\log_{10}|Z(%s)/Z(0)|$" % sym)
+    _deviation_axes(ax_dev, devs, sym)
     handles += [Line2D([], [], ls="none", marker="o", mfc="none", color=GREY, ms=3),
                 Line2D([], [], ls="none", marker="v", mfc="none", color=GREY, ms=3)]
     labels += ["edge/noise limited", "upper bound"]
-    title = r"largest $|Z-Z_\mathrm{ref}|$ / combined error"
+    title = r"largest $|Z-Z_\mathrm{ref}|$ / combined error (lower panel)"
     if beyond:
         title += "\n(rows beyond the convergence radius not drawn)"
     ncols = 2 if max(len(t) for t in labels) <= 21 else 1
@@ -186,13 +199,36 @@ def compare_figure(comparison, chosen=None):
     return fig
 
 
-def zeros_figure(zeros):
-    """Zeros of Z(mu) in the complex mu plane with the searched box and,
-    when known, the circle |mu| = radius out to which the cumulant series
-    of ln Z converges (the distance to the nearest zero). Open symbols:
-    Newton's iteration did not converge; a multiplicity above 1 is
-    written beside its zero."""
-    fig = _new_figure(2.9)
+def _deviation_axes(ax, devs, sym):
+    """The lower panel of the compare figure: (Z - Z_ref) / combined error,
+    signed by the real part, on a scale linear within +-1 (the band of
+    agreement) and logarithmic beyond, so that a route off by 1e6 errors
+    and one within its errors share the panel."""
+    ax.axhspan(-1, 1, color=_C["sky_blue"], alpha=0.3, lw=0, zorder=0)
+    ax.axhline(0, color=GREY, lw=0.5, zorder=1)
+    ax.set_yscale("symlog", linthresh=1.0, linscale=1.0)
+    values = [abs(v) for _, d, _ in devs.values() for v in d if math.isfinite(v)]
+    top = max([1.5] + values)
+    ax.set_ylim(-1.6 * top, 1.6 * top)
+    ticks = [0.0] + [10.0 ** k for k in range(0, int(math.log10(1.6 * top)) + 1)]
+    ax.set_yticks(sorted({-t for t in ticks} | set(ticks)))
+    ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: "%g" % (v if v else 0)))
+    ax.yaxis.set_minor_locator(NullLocator())
+    ax.set_xlabel(r"$%s$" % sym)
+    ax.set_ylabel(r"$(Z-Z_\mathrm{ref})/\sigma_\mathrm{comb}$")
+
+
+def zeros_figure(zeros, field="mu"):
+    """Zeros of Z(mu) in the complex mu plane: each zero with its error disc
+    (radius err; open symbols: Newton's iteration did not converge), and,
+    dashed, the disc of radius edge_shift over which the ends of the data
+    range could move it (drawn for the zeros flagged as possible artefacts
+    of the range, which are also drawn open); the searched box, the real
+    axis (real zeros are sign changes of the phase factor) and the disc
+    |mu| < radius in which the cumulant series of ln Z converges. A
+    multiplicity above 1 is written beside its zero."""
+    sym = field_symbol(field)
+    fig = _new_figure(3.1)
     ax = fig.subplots()
     items = list(getattr(zeros, "zeros", []) or [])
     box = getattr(zeros, "box", None)
@@ -205,21 +241,37 @@ def zeros_figure(zeros):
         ax.set_ylim(im0 - pad_y, im1 + pad_y)
     radius = getattr(zeros, "radius", None)
     if radius is not None:
-        t = np.linspace(0, 2 * np.pi, 721)
         r = float(radius)
-        ax.plot(r * np.cos(t), r * np.sin(t), ":", color=_C["orange"], lw=0.9,
-                label="cumulant convergence radius", gid="radius")
+        ax.add_patch(Circle((0, 0), r, fc=_C["orange"], alpha=0.12, lw=0, zorder=0,
+                            label="cumulant series converges"))
+        t = np.linspace(0, 2 * np.pi, 721)
+        ax.plot(r * np.cos(t), r * np.sin(t), ":", color=_C["orange"], lw=0.9, gid="radius",
+                zorder=1)
+    ax.axhline(0, color=GREY, lw=0.6, zorder=0.5, label=r"real axis")
     if items:
         re_ = np.array([float(z.re) for z in items])
         im_ = np.array([float(z.im) for z in items])
         err = np.array([float(z.err) for z in items])
         done = np.array([bool(getattr(z, "converged", True)) for z in items])
-        ax.errorbar(re_[done], im_[done], xerr=err[done], yerr=err[done], fmt="o", ms=3,
-                    color=_C["blue"], elinewidth=0.7, label=r"zero of $Z(\mu)$", gid="zeros")
+        edge = np.array([bool(getattr(z, "edge_limited", False)) for z in items])
+        shift = [getattr(z, "edge_shift", None) for z in items]
+        for x, y, e in zip(re_, im_, err):
+            ax.add_patch(Ellipse((x, y), 2 * e, 2 * e, fc=_C["blue"], alpha=0.35, lw=0,
+                                 zorder=2))
+        for x, y, d, flagged in zip(re_, im_, shift, edge):
+            if flagged and d is not None and math.isfinite(float(d)):
+                ax.add_patch(Ellipse((x, y), 2 * float(d), 2 * float(d), fill=False,
+                                     ls="--", lw=0.6, ec=_C["vermillion"], zorder=2))
+        good = done & ~edge
+        ax.plot(re_[good], im_[good], "o", ms=3, color=_C["blue"], ls="none",
+                label=r"zero of $Z(%s)$" % sym, gid="zeros", zorder=3)
+        if (done & edge).any():
+            ax.plot(re_[done & edge], im_[done & edge], "o", ms=3.2, mfc="white", mew=0.8,
+                    color=_C["vermillion"], ls="none", zorder=3, gid="zeros_edge",
+                    label="range could move it (dashed)")
         if (~done).any():
-            ax.errorbar(re_[~done], im_[~done], xerr=err[~done], yerr=err[~done], fmt="o",
-                        ms=3.5, mfc="none", color=_C["vermillion"], elinewidth=0.7,
-                        label="not converged", gid="zeros_unconverged")
+            ax.plot(re_[~done], im_[~done], "s", ms=3.5, mfc="none", color=_C["black"],
+                    ls="none", label="not converged", gid="zeros_unconverged", zorder=3)
         for z, x, y in zip(items, re_, im_):
             m = int(getattr(z, "multiplicity", 1) or 1)
             if m > 1:
@@ -229,8 +281,7 @@ def zeros_figure(zeros):
             ax.margins(0.15)
     else:
         ax.text(0.5, 0.5, "no zeros found", transform=ax.transAxes, ha="center", va="center")
-    ax.axhline(0, color=GREY, lw=0.5, zorder=0)
-    ax.set_xlabel(r"$\mathrm{Re}\,\mu$")
-    ax.set_ylabel(r"$\mathrm{Im}\,\mu$")
+    ax.set_xlabel(r"$\mathrm{Re}\,%s$" % sym)
+    ax.set_ylabel(r"$\mathrm{Im}\,%s$" % sym)
     _outside_legend(fig, ax)
     return fig

@@ -156,12 +156,36 @@ def horizon_text(table):
     return f"last ok mu = {found[0]:g} ({found[1]:.1f} orders cancelled)."
 
 
+FIELDS = {"mu": r"\mu", "theta": r"\theta"}
+
+
+def field_symbol(field="mu"):
+    """The TeX symbol of the field on the figures' axes: mu (a chemical
+    potential or field) or theta (a theta term)."""
+    if field not in FIELDS:
+        raise ValueError(f"unknown field {field!r}; expected one of {', '.join(FIELDS)}")
+    return FIELDS[field]
+
+
 def _new_figure(height):
     return Figure(figsize=(COLUMN_WIDTH, height))
 
 
+LEGEND_COLUMN_CHARS = 24   # longer labels get one legend column, so none is clipped
+
+
 def _outside_legend(fig, ax, ncols=2):
+    """The axes' legend below the axes, in two columns when every label is
+    short enough to fit half the figure's width, else in one."""
     handles, labels = ax.get_legend_handles_labels()
     if handles:
+        if max(len(_plain(t)) for t in labels) > LEGEND_COLUMN_CHARS:
+            ncols = 1
         fig.legend(handles, labels, loc="outside lower center", ncols=ncols,
                    columnspacing=1.0, handletextpad=0.5)
+
+
+def _plain(label):
+    """A legend label's length as printed, roughly: TeX markup removed."""
+    import re
+    return re.sub(r"\\[A-Za-z]+|[${}_^]", "", label)
