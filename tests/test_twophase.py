@@ -301,7 +301,7 @@ def test_command_line_names_two_phase_data_and_the_model_choice(tmp_path, capsys
     # a degree is a Chebyshev degree: refused for the other models
     assert main(["run", str(src), "--mu", "0:1:5", "--model", "rational", "--degree", "4",
                  "--out", str(tmp_path / "bad")]) == 2
-    assert "Chebyshev degree" in capsys.readouterr().err
+    assert "applies only to the Chebyshev model" in capsys.readouterr().err
     assert not (tmp_path / "bad").exists()
     from signfree.analysis.compare import compare
     from signfree.io.reading import read_density
