@@ -32,7 +32,7 @@ from signfree.io.samples import Samples, density_from_samples
 from signfree.models.chebyshev import candidate_degrees, fit_chebyshev
 from signfree.models.cumulant import CumulantModel
 
-UNCOMPARABLE = ("unresolved", "beyond_radius")
+UNCOMPARABLE = ("unresolved", "beyond_radius", "misfit")   # misfit: a value the data reject
 COLUMNS = ("mu", "model", "avg_phase", "avg_phase_imag", "avg_phase_err", "total_err",
            "cancel_orders", "model_err", "status")
 
@@ -129,8 +129,9 @@ class Comparison:
 
 def _comparable(row):
     """A row takes part in the comparison when its errors support at least
-    the leading digit of its value and it is not past the radius of a
-    series: agreement within errors as large as the value says nothing."""
+    the leading digit of its value, it is not past the radius of a series
+    and it does not rest on a fit the data reject (misfit): agreement within
+    errors as large as the value says nothing."""
     return row.status not in UNCOMPARABLE and row.last_digit is not None
 
 
