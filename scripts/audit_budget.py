@@ -3,7 +3,7 @@
 noise, analysed as a user would; every ok row is checked against the exact
 value, and the rows that miss are listed.
 
-    python scripts/audit_budget.py [--only SUBSTRING] [--seeds N]
+    python scripts/audit_budget.py [--only SUBSTRING] [--seeds N] [--model M] [--twophase]
 
 A row misses when |value - exact| > 1.06 (quad + model + edge + 3 stat) plus
 half a unit of its last printed digit.
@@ -22,6 +22,7 @@ sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "tests"))
 
 import exact_cases as X  # noqa: E402
+import twophase_cases as T  # noqa: E402
 from signfree.analysis.analyse import analyse  # noqa: E402
 
 
@@ -53,16 +54,37 @@ def scenarios(seed):
     yield "histogram reps", X.histogram_data(g3, np.arange(-16.0, 16.0001, 0.5), 4e5, replicas=5, seed=seed), g3, mus(2)
 
 
+def twophase_scenarios(seed):
+    """Two-phase densities: valleys of about e^-5, e^-20, e^-50 and e^-100
+    between two Gaussians, an unequal pair from raw samples, and a double
+    well exp(V (a x^2 - x^4)); scans through the first zeros of Z."""
+    for c in (3.5, 6.5, 10.0, 14.2):
+        case = T.valley(c)
+        half = c + 6
+        yield (f"valley c={c:g} ln rho", X.log_density_data(case, X.grid(case, half, 161), 1e-3,
+                                                            seed=seed), case, mus(3))
+        yield (f"valley c={c:g} slopes", X.slopes_data(case, -half, half, 0.25, 1e-2,
+                                                       replicas=6, seed=seed), case, mus(3))
+    uneven = X.mixture([(0.7, -5.0, 1.2), (0.3, 6.0, 0.9)])
+    yield ("uneven samples", T.sampled(uneven, -11, 11, 200000, seed=seed), uneven, mus(2.5))
+    dw = T.double_well(100.0)
+    yield ("double well slopes", X.slopes_data(dw, -130, 130, 1.0, 1e-2, replicas=6, seed=seed),
+           dw, mus(1))
+    yield ("double well samples", T.sampled(dw, -125, 125, 400000, seed=seed), dw, mus(0.6))
+
+
 def main():
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--only", default="")
     ap.add_argument("--seeds", type=int, default=2)
-    ap.add_argument("--model", default="chebyshev")
+    ap.add_argument("--model", default="auto")
     ap.add_argument("--degree", default=None, help="'per-mu' or an integer (default: chosen)")
+    ap.add_argument("--twophase", action="store_true",
+                    help="the two-phase scenarios instead of the general ones")
     a = ap.parse_args()
     total_bad = total_ok = 0
     for seed in range(a.seeds):
-        for name, density, case, mu in scenarios(seed):
+        for name, density, case, mu in (twophase_scenarios if a.twophase else scenarios)(seed):
             if a.only not in name:
                 continue
             t0 = time.perf_counter()

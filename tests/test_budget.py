@@ -30,9 +30,11 @@ def test_a_fit_the_errors_reject_is_never_ok():
     # Chebyshev coefficients fall only like 1.105^-k (Bernstein ellipse,
     # Trefethen ATAP ch. 8) and no candidate degree fits errors of 1e-5.
     # Exact: exp(-2 |mu|), the Cauchy characteristic function (common practice).
+    # (the Chebyshev model asked for by name: --model auto would take the
+    # rational model here, tests/test_twophase.py)
     case = X.cauchy(2.0)
     d = X.log_density_data(case, X.grid(case, 20, 81), 1e-5, seed=3)
-    t = analyse(d, parse_mu_spec("0:2:9"), digits=10).table
+    t = analyse(d, parse_mu_spec("0:2:9"), digits=10, model="chebyshev").table
     counts = checked(t, case)
     assert counts["ok"] == 0 and counts["misfit"] == len(t.rows)
     assert "chi2/dof" in t.info["misfit"] and t.info["horizon"]["reason"] == "misfit"

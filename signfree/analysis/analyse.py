@@ -15,26 +15,21 @@ import mpmath
 import numpy as np
 
 from signfree import engine, progress
-from signfree.analysis import budget, observables, uncertainty
+from signfree.analysis import budget, model_choice, observables, uncertainty
 from signfree.analysis.cumulant import analyse_cumulant
 from signfree.analysis.lattice import analyse_lattice, resolve_lattice
 from signfree.analysis.results import Analysis, ResultTable, Row, density_rises_at_edge
 from signfree.analysis.settings import MODELS, check_digits, parse_mu_spec, settings_of
 from signfree.models.chebyshev import fit_chebyshev
-from signfree.models.piecewise import PiecewiseModel
 
 __all__ = ["Analysis", "analyse", "smoothing_models", "parse_mu_spec", "check_digits", "MODELS"]
 
 
 def smoothing_models(density, model="chebyshev", degree=None, parity=None):
     """(central model, neighbour models for the truncation error, fit)."""
-    if model == "chebyshev":
-        fit = fit_chebyshev(density, degree=degree, parity=parity)
-        return fit.model, list(fit.next_models), fit
-    if model == "piecewise":
-        piecewise = PiecewiseModel.from_density(density)
-        return piecewise, [piecewise.coarsened()], None
-    raise ValueError(f"unknown model {model!r}; expected one of {', '.join(MODELS)}")
+    if model not in MODELS or model == "cumulant":
+        raise ValueError(f"unknown model {model!r}; expected one of {', '.join(MODELS)}")
+    return model_choice.smoothing(density, model, degree, parity)[:3]
 
 
 def analyse(density, mus, settings=None, samples=None, **changes):
@@ -54,6 +49,8 @@ def analyse(density, mus, settings=None, samples=None, **changes):
     ``imaginary_reference`` are handled there too."""
     s = settings_of(settings, **changes)
     mus, off_axis = observables.split_mus(mus)
+    if s.model == "auto" and observables.wanted(s, off_axis):
+        s = s.with_(model="chebyshev")      # observables rest on the Chebyshev model
     if s.model == "cumulant":
         reference = _analyse_fixed(density, mus, s.with_(model="chebyshev",
                                                          degree=None if s.degree == "per-mu"
@@ -75,10 +72,11 @@ def analyse(density, mus, settings=None, samples=None, **changes):
 
 
 def _analyse_fixed(density, mus, s):
-    """The Chebyshev or piecewise path at one degree (given or chosen)."""
+    """One smoothing model (asked for or chosen) at one order (given or chosen)."""
     start = time.perf_counter()
     progress.report(f"fitting the {s.model} model")
-    central, neighbours, fit = smoothing_models(density, s.model, s.degree, s.parity)
+    central, neighbours, fit, choice = model_choice.smoothing(density, s.model, s.degree,
+                                                              s.parity)
     method = uncertainty.choose_method(density, s.errors, central.label)
     seed = s.seed
     batch = [central] + neighbours
@@ -89,6 +87,11 @@ def _analyse_fixed(density, mus, s):
         method = "draws"
         resamples = uncertainty.resampled_models(density, central,
                                                  uncertainty.perturbed_values(density))
+    elif method == "covariance" and hasattr(fit, "sensitivity_models"):
+        # a model not linear in its parameters: central differences along
+        # the principal axes of their covariance, propagated linearly
+        method = "covariance-differences"
+        resamples = fit.sensitivity_models()
     if method in ("jackknife", "bootstrap"):
         if method == "bootstrap" and seed is None:
             seed = int(np.random.SeedSequence().entropy % (1 << 32))
@@ -110,7 +113,9 @@ def _analyse_fixed(density, mus, s):
     K = len(tr.mus)
     n_res = len(resamples)
     rep_rows = tr.values[len(batch):len(batch) + n_res]
-    if resamples:
+    if method == "covariance-differences":
+        stat = uncertainty.propagate_differences(tr.values[0], rep_rows)
+    elif resamples:
         stat = uncertainty.spread_relative("bootstrap" if method == "draws" else method,
                                            tr.values[0], rep_rows)
     elif method == "covariance":
@@ -167,7 +172,8 @@ def _analyse_fixed(density, mus, s):
         "domain": list(central.domain),
         "statistical_errors": _describe_errors(method, density, s.bootstrap_samples),
         "hidden_weight": _float_or_inf(budget.hidden_mass(central, tr.log_z0[0])),
-        "notes": [],
+        "notes": list(choice.get("notes", [])),
+        **{k: v for k, v in choice.items() if k != "notes"},
     }
     if method == "bootstrap":
         info["bootstrap_seed"] = seed
@@ -185,8 +191,9 @@ def _analyse_fixed(density, mus, s):
             info["histogram_fit"] = "bin integrals of the model (ln((count + 1/2)/width) corrected)"
         info["notes"].extend(fit.notes)
         if not fit_ok:
-            info["misfit"] = (f"chi2/dof = {central.chi2 / max(central.dof, 1):.3g} at degree "
-                              f"{central.degree}: no Chebyshev degree fits the data within their "
+            kind = central.label.split(":")[0]
+            info["misfit"] = (f"chi2/dof = {central.chi2 / max(central.dof, 1):.3g} at "
+                              f"{central.label}: no {kind} order fits the data within their "
                               "errors; every row has the status misfit")
     else:
         info["model_err_against"] = "piecewise through every other knot"
@@ -235,6 +242,9 @@ def _describe_errors(method, density, samples):
         "jackknife": f"delete-one jackknife over {n_rep} replicas, refit and integrated",
         "bootstrap": f"bootstrap, {samples} resamples of {n_rep} replicas, refit and integrated",
         "covariance": "linear propagation of the fit-coefficient covariance through the integral",
+        "covariance-differences": "linear propagation of the fit-parameter covariance "
+                                  "(central differences of the integral along its principal "
+                                  "axes)",
         "draws": f"the stated errors propagated by {uncertainty.PIECEWISE_DRAWS} Monte Carlo "
                  "draws of the data",
         "none": "none",

@@ -2,8 +2,10 @@
 
 Routes: the Chebyshev smoothing of ln rho at the automatically chosen degree
 and at its two neighbours, the truncated cumulant expansion
-exp(sum_{n <= K} kappa_n (i mu)^n / n!) for K = 2, 4, 6, ..., and the raw
-piecewise-linear reconstruction. Each row carries its own error budget
+exp(sum_{n <= K} kappa_n (i mu)^n / n!) for K = 2, 4, 6, ..., the rational
+model of the slope and the two-component model (where the data show a
+valley), each at its automatic order, and the raw piecewise-linear
+reconstruction. Each row carries its own error budget
 (:mod:`signfree.analysis.results`); two routes agree at a mu when
 |Z_a - Z_b| <= total_err_a + total_err_b, a conservative test since each
 total error is itself a sum of bounds. The cumulant routes also carry the
@@ -30,7 +32,7 @@ from signfree.io.samples import Samples, density_from_samples
 from signfree.models.chebyshev import candidate_degrees, fit_chebyshev
 from signfree.models.cumulant import CumulantModel
 
-UNCOMPARABLE = ("unresolved", "beyond_radius")
+UNCOMPARABLE = ("unresolved", "beyond_radius", "misfit")   # misfit: a value the data reject
 COLUMNS = ("mu", "model", "avg_phase", "avg_phase_imag", "avg_phase_err", "total_err",
            "cancel_orders", "model_err", "status")
 
@@ -38,8 +40,9 @@ COLUMNS = ("mu", "model", "avg_phase", "avg_phase_imag", "avg_phase_err", "total
 @dataclass
 class Comparison:
     """Rows per route (label -> list of rows over mu, in the order of
-    ``mus``), the reference route (the chosen Chebyshev model) and what the
-    comparison rests on."""
+    ``mus``), the reference route (the model --model auto takes: the chosen
+    Chebyshev degree, or for two-phase data the rational or two-component
+    model) and what the comparison rests on."""
 
     mus: list
     routes: dict
@@ -126,8 +129,9 @@ class Comparison:
 
 def _comparable(row):
     """A row takes part in the comparison when its errors support at least
-    the leading digit of its value and it is not past the radius of a
-    series: agreement within errors as large as the value says nothing."""
+    the leading digit of its value, it is not past the radius of a series
+    and it does not rest on a fit the data reject (misfit): agreement within
+    errors as large as the value says nothing."""
     return row.status not in UNCOMPARABLE and row.last_digit is not None
 
 
@@ -192,6 +196,22 @@ def compare(density, mus, digits=12, max_cumulant_order=8, radius="auto"):
                            parity=chosen.parity)
         routes[cm.label] = cumulant_rows(cm, mus, reference=chosen_rows, radius=radius,
                                          digits=digits)
+    progress.report("route auto")
+    auto = analyse(density, mus, digits=digits, step="continuous")   # what --model auto takes
+    for name in ("rational", "two-component"):
+        # the models for two-phase data (analysis.model_choice), each at its
+        # own automatic order; the reference when --model auto takes one
+        if auto.model.label.startswith(name + ":"):
+            routes[auto.model.label] = auto.table.rows
+            reference = auto.model.label
+            continue
+        progress.report(f"route {name}")
+        try:
+            alt = analyse(density, mus, model=name, digits=digits, step="continuous")
+        except ValueError as exc:
+            notes.append(str(exc))
+            continue
+        routes[alt.model.label] = alt.table.rows
     progress.report("route piecewise")
     pw = analyse(density, mus, model="piecewise", digits=digits, step="continuous")
     routes["piecewise"] = pw.table.rows

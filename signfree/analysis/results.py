@@ -106,7 +106,7 @@ class Row:
         if not self.fit_ok and self.resolved:
             # a value the data reject: kept for inspection with at most the
             # digits its errors support, and at least three
-            if err > 0:
+            if err > 0 and mpmath.isfinite(err):
                 last = max(last, int(mpmath.floor(mpmath.log10(err))))
             return min(last, top - 2)
         if err >= mag or self.status == "unresolved":

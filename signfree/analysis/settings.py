@@ -12,7 +12,7 @@ from dataclasses import dataclass, fields, replace
 from signfree.analysis.mu_spec import ComplexMu, parse_mu_values
 from signfree.analysis.weights import parse_observables
 
-MODELS = ("chebyshev", "piecewise", "cumulant")
+MODELS = ("auto", "chebyshev", "rational", "two-component", "piecewise", "cumulant")
 ERROR_METHODS = ("auto", "jackknife", "bootstrap", "covariance", "none")
 PARITIES = ("even", "odd", "none")
 LATTICE_ROUTES = ("auto", "direct", "smoothed")
@@ -22,9 +22,12 @@ LATTICE_ROUTES = ("auto", "direct", "smoothed")
 class Settings:
     """The choices of one analysis.
 
-    model     'chebyshev' (default), 'piecewise' or 'cumulant'
+    model     'auto' (default: the Chebyshev series unless the data are
+              two-phase or it fits at no degree, then the best of Chebyshev,
+              rational and two-component; analysis.model_choice), 'chebyshev',
+              'rational', 'two-component', 'piecewise' or 'cumulant'
     degree    Chebyshev degree: None (chosen from the errors), an integer, or
-              'per-mu'
+              'per-mu' (with model 'auto' a degree means the Chebyshev model)
     digits    significant digits wanted (1 to 1000)
     certify   rigorous acb.integral enclosures instead of the refinement check
     volume    V for Delta f = -ln|Z/Z0| / V (None: the density's own)
@@ -49,7 +52,7 @@ class Settings:
               lies beyond the range); None: the metadata 'range: complete'
     """
 
-    model: str = "chebyshev"
+    model: str = "auto"
     degree: object = None
     digits: int = 12
     certify: bool = False
@@ -102,9 +105,10 @@ class Settings:
             object.__setattr__(self, "observables", items)
         if self.observables:
             parse_observables(self.observables)
-        if self.degree is not None and self.model != "chebyshev":
+        if self.degree is not None and self.model not in ("chebyshev", "auto"):
             raise ValueError(f"--degree {self.degree}: the degree applies only to the "
-                             f"Chebyshev model, not to --model {self.model}")
+                             f"Chebyshev model (which --model auto then takes), not to "
+                             f"--model {self.model}")
 
     def with_(self, **changes):
         """A copy with some fields changed (checked again)."""

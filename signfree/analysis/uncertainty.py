@@ -98,6 +98,8 @@ def coverage_factor(method, n_replicas, nu_errors=None):
         return np.sqrt(R / (R - 1)) * student_factor(R - 1)
     if method == "covariance":
         return student_factor(nu_errors)
+    if method == "covariance-differences":
+        return student_factor(nu_errors)
     if method == "draws":
         return student_factor(PIECEWISE_DRAWS - 1)
     return 1.0
@@ -137,6 +139,8 @@ def resampled_models(density, model, values, correction=None):
         d = dataclasses.replace(density, value=v, replicas=None)
         if isinstance(model, PiecewiseModel):
             out.append(PiecewiseModel.from_density(d))
+        elif hasattr(model, "refit"):         # models not linear in their parameters
+            out.append(model.refit(d, sigma, correction))
         else:
             out.append(fit_degree(d, model.degree, model.parity, sigma=sigma,
                                   correction=correction))
@@ -187,6 +191,25 @@ def spread_relative(method, central, rows):
             col = [mpmath.mpc(engine.to_mpf(row[k].real), engine.to_mpf(row[k].imag))
                    for row in rows]
             out.append(spread_mp(method, [[c] for c in col])[0])
+    return out
+
+
+def propagate_differences(central, rows, step=None):
+    """Linear propagation from central differences (models of
+    :func:`signfree.models.nonlinear.sensitivity_models`: rows in pairs
+    plus, minus per principal axis of the parameter covariance, ``step``
+    standard deviations either side of the centre): the error per mu is
+    sqrt(sum_i |Z_i+ - Z_i-|^2) / (2 step), with exact differences of the
+    balls' midpoints (values may lie far below 1e-308)."""
+    from signfree.models.nonlinear import DIFFERENCE_STEP
+    step = DIFFERENCE_STEP if step is None else step
+    out = []
+    for k in range(len(central)):
+        total = mpmath.mpf(0)
+        for plus, minus in zip(rows[0::2], rows[1::2]):
+            d = engine.difference(plus[k], minus[k])
+            total += abs(mpmath.mpc(engine.to_mpf(d.real), engine.to_mpf(d.imag))) ** 2
+        out.append(mpmath.sqrt(total) / (2 * step))
     return out
 
 

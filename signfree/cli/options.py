@@ -104,9 +104,12 @@ def add_analysis_options(p):
     p.add_argument("--mu", required=True, metavar="SPEC", help=MU_HELP)
     p.add_argument("--volume", type=float, help="volume V for delta_f (overrides metadata)")
     add_input_options(p)
-    p.add_argument("--model", choices=MODELS, default="chebyshev",
-                   help="smoothing: Chebyshev series of ln rho (default), the raw piecewise-"
-                        "linear reconstruction, or the cumulant expansion to --order")
+    p.add_argument("--model", choices=MODELS, default="auto",
+                   help="smoothing: auto (default: the Chebyshev series of ln rho, or for "
+                        "two-phase data the best of it, the rational model of the slope and "
+                        "two components by chi2 and AIC), chebyshev, rational, two-component, "
+                        "the raw piecewise-linear reconstruction, or the cumulant expansion "
+                        "to --order")
     p.add_argument("--order", type=int, metavar="K",
                    help="highest order of the cumulant expansion, with --model cumulant "
                         "(default 4)")

@@ -11,6 +11,8 @@ Modules:
   transforms     the batch Gauss-Legendre route for an entire ln rho
   certification  rigorous enclosures by acb.integral
   closed_forms   piecewise-linear ln rho (exact segments), cumulant series
+  general        rational ln rho (panels around its branch points) and
+                 two-component densities (sums of Chebyshev transforms)
   moments        cumulants of a model's density by quadrature
   complex_mu     Z and Z' at complex mu (for zeros and cumulant radii)
   sums           exact sums over a charge lattice (theta terms, magnetisation)
@@ -56,6 +58,14 @@ def transform(models, mus, digits=12, certify=False, check_rows=None, gradient=(
     if form == "piecewise-linear":
         from signfree.engine.closed_forms import segment_transform
         return segment_transform(models, mus, digits=digits)
+    if form == "rational-log":
+        from signfree.engine.general import singular_transform
+        return singular_transform(models, mus, digits=digits, certify=certify,
+                                  check_rows=check_rows)
+    if form == "two-component":
+        from signfree.engine.general import two_component_transform
+        return two_component_transform(models, mus, digits=digits, certify=certify,
+                                       check_rows=check_rows, path=path)
     if form == "cumulant-series":
         from signfree.engine.closed_forms import cumulant_series_transform
         return cumulant_series_transform(models, mus, digits=digits)

@@ -79,12 +79,16 @@ def print_report(result, folder, reference=None, out=sys.stdout):
               f"precision, {info['nodes']} nodes, {result.seconds:.2f} s", file=out)
     if info.get("misfit"):
         print(f"MISFIT: {info['misfit']}", file=out)
+    choice = info.get("model_choice") or {}
+    if len(choice.get("candidates", [])) > 1:
+        print(f"model choice: {choice['chosen']}, {choice['reason']}", file=out)
     for note in info["notes"]:
         print(f"note: {note}", file=out)
     print(table.text(reference), file=out)
     counts = ", ".join(f"{v} {k}" for k, v in table.status_counts().items() if v)
     print(f"statuses: {counts}; statistical errors: {info['statistical_errors']}", file=out)
-    print(horizon_line(info["horizon"]), file=out)
+    phase = " [two-phase data]" if (info.get("two_phase") or {}).get("detected") else ""
+    print(horizon_line(info["horizon"]) + phase, file=out)
     if info.get("theta"):
         from signfree.analysis.theta import theta_line
         print(theta_line(info["theta"]), file=out)

@@ -333,6 +333,7 @@ def html_report(analysis, figures, summary, comparison=None, zeros=None, referen
     parts.append('<section id="model"><h2>Model and fit quality</h2>')
     parts.append(_kv([
         ("model", info.get("model")), ("degree", info.get("degree")),
+        ("model choice", (info.get("model_choice") or {}).get("reason")),
         ("parity", info.get("parity")),
         ("chi2 / dof", None if info.get("chi2_per_dof") is None else
          f"{info['chi2'] :.4g} / {info['dof']} = {info['chi2_per_dof']:.4g}"),
