@@ -180,13 +180,23 @@ def _radius(z):
     return upper(acb(z.real.rad(), z.imag.rad()))
 
 
-def _worst(ratios, k, check_rows, tol):
+class RidingRowsCancel(ArithmeticError):
+    """Rows that ride along (replicas) would need far more precision on the
+    central row's path than the central row itself."""
+
+
+REPLICA_BITS_LIMIT = 1024
+
+
+def _worst(ratios, k, check_rows, tol, own_only=False):
     """The largest radius at mu_k relative to |value| (checked rows) or to
     |row 0| (the other rows, which need row 0's absolute accuracy); the
     other rows are compared in ball arithmetic first and measured only when
     one of them is not below tol / 10 of |row 0|."""
     bits = min(ratios[r][k].rel_accuracy_bits() for r in range(check_rows))
     top = mpmath.mpf(2) ** (-bits) if bits < 2 ** 30 else mpmath.mpf(0)
+    if own_only:
+        return top
     z0 = ratios[0][k]
     with ctx.workprec(64):
         limit = (abs(z0).mid() * arb(mpmath.nstr(tol / 20, 5))).mid()
@@ -284,6 +294,13 @@ def path_transform(coef_rows, domain, mus, groups, normaliser, digits, check_row
             # rows past check_rows (replicas) need the absolute accuracy of row 0
             worst = max(_worst(ratios, k, check_rows, tol) for k in range(len(ms)))
             if worst > tol / 10 and prec < MAX_PREC:
+                own = max(_worst(ratios, k, check_rows, tol, own_only=True)
+                          for k in range(len(ms)))
+                if own <= tol / 10 and _raise(prec, worst, tol) > REPLICA_BITS_LIMIT:
+                    # a replica whose saddle lies far from the central one's
+                    # cancels heavily on this path: the caller takes the
+                    # real axis instead
+                    raise RidingRowsCancel()
                 prec = _raise(prec, worst, tol)
                 continue
             Zf, _, nf = path_sums(coef_rows[:1], domain, g.path, ms, prec, 1.5 * scale, shifts)

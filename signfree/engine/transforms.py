@@ -264,8 +264,12 @@ def _shifted(models, rows, domain, mus, digits, var, check_rows, gradient, certi
     if all(g.path.height == 0 for g in groups):
         return None, [max(r, 0.0) / math.log(10) for g in groups for r in g.log_ratio]
     normaliser = paths.plan(models[0].coef, domain, [0.0], digits, even, force_real=True)[0]
-    out = path_sums.path_transform(rows, domain, mus, groups, normaliser, digits,
-                                   check_rows, tuple(gradient))
+    try:
+        out = path_sums.path_transform(rows, domain, mus, groups, normaliser, digits,
+                                       check_rows, tuple(gradient))
+    except path_sums.RidingRowsCancel:
+        # replicas far from the central model: every row on the real axis
+        return None, [max(r, 0.0) / math.log(10) for g in groups for r in g.log_ratio]
     tr = Transform(**out)
     if certify:
         from signfree.engine.certification import certified as _certified
