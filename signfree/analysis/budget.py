@@ -110,24 +110,9 @@ def mode_amplitudes(density, omegas, sigma, residuals, keep=None, even=False):
 def model_transform(model, top):
     """(nu, F(nu) exp(-i nu c), c) for nu in [0, top]: the model's phase
     factor F = Z(nu)/Z(0) in double precision with its turning at the mean c
-    taken out (so that it interpolates well), by a trapezoid sum on an even q
-    grid through a zero-padded FFT."""
-    a, b = model.domain
-    L = b - a
-    h = min(L / 256, np.pi / (2 * max(top, 1e-12)))
-    n = int(np.ceil(L / h)) + 1
-    q = np.linspace(a, b, n)
-    p = np.asarray(model.log_density(q), dtype=float)
-    f = np.exp(p - p.max())
-    f[0] *= 0.5
-    f[-1] *= 0.5
-    c = float((f * q).sum() / f.sum())
-    pad = 1 << int(np.ceil(np.log2(16 * n)))
-    spec = np.fft.ifft(f, pad) * pad          # sum_n f_n exp(+i nu (q_n - a))
-    nu = 2 * np.pi * np.arange(pad) / (pad * (q[1] - q[0]))
-    keep = nu <= top * 1.01 + 1e-12
-    nu = nu[keep]
-    return nu, spec[keep] * np.exp(1j * nu * (a - c)) / f.sum(), c
+    taken out (so that it interpolates well): :func:`weighted_transform`
+    with O = 1."""
+    return weighted_transform(model, None, top)
 
 
 def residuals(density, model, correction=None, sigma=None):
@@ -334,9 +319,10 @@ def piecewise_floor(model, log_z0, values, mus):
 # ------------------------------------------------------------ ratios
 
 def weighted_transform(model, weight, top):
-    """(nu, N(nu) exp(-i nu c)): Int O(q) rho e^{i nu q} / Int rho for the
-    polynomial weight O (a function of q), as :func:`model_transform` does
-    for O = 1, with the same centring c."""
+    """(nu, N(nu) exp(-i nu c), c) for nu in [0, top]: N = Int O(q) rho
+    e^{i nu q} / Int rho for a weight O (a function of q; None for O = 1),
+    in double precision, by a trapezoid sum on an even q grid through a
+    zero-padded FFT, with the turning at the mean c of rho taken out."""
     a, b = model.domain
     L = b - a
     h = min(L / 256, np.pi / (2 * max(top, 1e-12)))
@@ -348,7 +334,8 @@ def weighted_transform(model, weight, top):
     f[-1] *= 0.5
     c = float((f * q).sum() / f.sum())
     pad = 1 << int(np.ceil(np.log2(16 * n)))
-    spec = np.fft.ifft(f * weight(q), pad) * pad
+    g = f if weight is None else f * weight(q)
+    spec = np.fft.ifft(g, pad) * pad          # sum_n g_n exp(+i nu (q_n - a))
     nu = 2 * np.pi * np.arange(pad) / (pad * (q[1] - q[0]))
     keep = nu <= top * 1.01 + 1e-12
     nu = nu[keep]

@@ -37,6 +37,7 @@ from signfree.analysis import uncertainty
 from signfree.analysis.contour import Counter
 from signfree.analysis.lattice import _fit, choose_route
 from signfree.analysis.lattice_budget import direct_method, linear_errors
+from signfree.analysis.zeros import _sci, _with_err
 from signfree.engine.balls import MAX_PREC, upper
 from signfree.engine.complex_mu import ContourError
 from signfree.engine.sums import lattice_weights
@@ -196,21 +197,6 @@ class FugacityResult:
                      "polynomial in z = exp(i theta step)")
         lines += [f"note: {n}" for n in self.notes]
         return "\n".join(lines)
-
-
-def _sci(x, nsig):
-    with mpmath.workdps(max(15, nsig + 5)):
-        return mpmath.nstr(mpmath.mpf(x), max(1, nsig), min_fixed=-4, max_fixed=6)
-
-
-def _with_err(x, err, digits):
-    if abs(x) <= err:
-        return "0"
-    top = int(mpmath.floor(mpmath.log10(abs(x))))
-    last = top - digits + 1
-    if err > 0:
-        last = max(last, int(mpmath.floor(mpmath.log10(err))))
-    return _sci(x, max(1, top - last + 1))
 
 
 def _mp(z):
