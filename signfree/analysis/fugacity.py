@@ -37,7 +37,7 @@ from signfree.analysis import uncertainty
 from signfree.analysis.contour import Counter
 from signfree.analysis.lattice import _fit, choose_route
 from signfree.analysis.lattice_budget import direct_method, linear_errors
-from signfree.analysis.zeros import _sci, _with_err
+from signfree.analysis.zeros import _sci, _with_err, zero_table
 from signfree.engine.balls import MAX_PREC, upper
 from signfree.engine.complex_mu import ContourError
 from signfree.engine.sums import lattice_weights
@@ -183,13 +183,7 @@ class FugacityResult:
         rows = [[r["re"], r["im"], r["err"], r["z_abs"],
                  _sci(mpmath.arg(z.z), 6), r["noise_shift"], r["edge_shift"], r["status"]]
                 for r, z in zip(recs, self.zeros)]
-        lines = []
-        if rows:
-            widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
-            fmt = "  ".join("{:>%d}" % w for w in widths)
-            lines += [fmt.format(*head)] + [fmt.format(*r) for r in rows]
-        else:
-            lines.append("no zeros in the box")
+        lines = zero_table(head, rows)
         b = self.box
         lines.append(f"box re [{float(b[0]):g}, {float(b[1]):g}], im [{float(b[2]):g}, "
                      f"{float(b[3]):g}] of theta: {self.count} zero(s) by the argument "

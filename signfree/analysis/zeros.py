@@ -161,13 +161,7 @@ class ZeroResult:
         head = ["re", "im", "total err", "stat", "model", "structure", "mult", "status"]
         rows = [[r["re"], r["im"], r["total_err"], r["stat_err"], r["model_err"],
                  r["structure_err"], r["multiplicity"], r["status"]] for r in self.records()]
-        lines = []
-        if rows:
-            widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
-            fmt = "  ".join("{:>%d}" % w for w in widths)
-            lines += [fmt.format(*head)] + [fmt.format(*r) for r in rows]
-        else:
-            lines.append("no zeros in the box")
+        lines = zero_table(head, rows)
         b = self.box
         lines.append(f"box re [{float(b[0]):g}, {float(b[1]):g}], im [{float(b[2]):g}, "
                      f"{float(b[3]):g}]: {self.count} zero(s) by the argument principle")
@@ -180,6 +174,16 @@ class ZeroResult:
         for note in ([self.note] if self.note else []) + list(self.notes):
             lines.append(f"note: {note}")
         return "\n".join(lines)
+
+
+def zero_table(head, rows):
+    """Lines of a right-aligned table of zeros, or the line saying there
+    are none."""
+    if not rows:
+        return ["no zeros in the box"]
+    widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
+    fmt = "  ".join("{:>%d}" % w for w in widths)
+    return [fmt.format(*head)] + [fmt.format(*r) for r in rows]
 
 
 def _sci(x, nsig):

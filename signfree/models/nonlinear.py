@@ -1,8 +1,8 @@
 """Weighted nonlinear least squares for the smoothing models that are not
 linear in their parameters (the rational model of the slope, the
 two-component model): the data in the measured quantity, the solution by
-Levenberg-Marquardt (More, Lecture Notes in Mathematics 630 (1978), through
-scipy.optimize.least_squares), the parameter covariance from the Jacobian at
+the Levenberg-Marquardt method (through scipy.optimize.least_squares), the
+parameter covariance from the Jacobian at
 the solution, and the choice of order by the same chi^2 criterion as the
 Chebyshev fit.
 
